@@ -1,0 +1,27 @@
+#include "plimsoll/cli/app.h"
+
+#include <CLI/CLI.hpp>
+#include <string>
+
+#include "cli/commands.h"
+#include "plimsoll/version.h"
+
+namespace plimsoll::cli {
+
+int Main(int argc, char** argv) {
+  CLI::App app{
+      "plimsoll keeps a forecast band (an exponential-smoothing state space model) for every live\n"
+      "numeric feed, flags observations that cross it and raises alerts when a feed keeps breaking it."};
+  app.set_version_flag("--version", std::string("plimsoll ") + kVersion);
+  app.require_subcommand(1);
+  app.footer("Run 'plimsoll VERB --help' for the options of one verb.");
+  CommandContext context;
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    return app.exit(e) == 0 ? 0 : 2;
+  }
+  return context.exit_code;
+}
+
+}  // namespace plimsoll::cli
