@@ -8,13 +8,19 @@ function(plimsoll_warnings target)
   endif()
 endfunction()
 
-# plimsoll_module(NAME DEPS dep...): library plimsoll_NAME from src/NAME/*.cc (an INTERFACE
-# library while the folder has no sources), public headers from include/.
+# plimsoll_module(NAME [OBJECT] DEPS dep...): library plimsoll_NAME from src/NAME/*.cc (an
+# INTERFACE library while the folder has no sources), public headers from include/. OBJECT keeps
+# every object file in whatever links it, so self-registering parts (CLI verbs) are never dropped.
 function(plimsoll_module name)
-  cmake_parse_arguments(ARG "" "" "DEPS" ${ARGN})
+  cmake_parse_arguments(ARG "OBJECT" "" "DEPS" ${ARGN})
   file(GLOB sources CONFIGURE_DEPENDS "${CMAKE_SOURCE_DIR}/src/${name}/*.cc")
+  if(ARG_OBJECT)
+    set(kind OBJECT)
+  else()
+    set(kind STATIC)
+  endif()
   if(sources)
-    add_library(plimsoll_${name} STATIC ${sources})
+    add_library(plimsoll_${name} ${kind} ${sources})
     target_include_directories(plimsoll_${name}
       PUBLIC "${CMAKE_SOURCE_DIR}/include" "${CMAKE_BINARY_DIR}/generated"
       PRIVATE "${CMAKE_SOURCE_DIR}/src")

@@ -2,11 +2,25 @@
 
 #include <CLI/CLI.hpp>
 #include <string>
+#include <vector>
 
 #include "cli/commands.h"
 #include "plimsoll/version.h"
 
 namespace plimsoll::cli {
+namespace {
+
+std::vector<VerbSetup>& Verbs() {
+  static std::vector<VerbSetup> verbs;
+  return verbs;
+}
+
+}  // namespace
+
+bool RegisterVerb(VerbSetup setup) {
+  Verbs().push_back(setup);
+  return true;
+}
 
 int Main(int argc, char** argv) {
   CLI::App app{
@@ -16,6 +30,7 @@ int Main(int argc, char** argv) {
   app.require_subcommand(1);
   app.footer("Run 'plimsoll VERB --help' for the options of one verb.");
   CommandContext context;
+  for (VerbSetup setup : Verbs()) setup(app, context);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
