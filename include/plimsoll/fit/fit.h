@@ -1,0 +1,146 @@
+#pragma once
+// Maximum-likelihood fitting of one exponential-smoothing form, and automatic selection by AICc
+// over a candidate set.
+//
+// The objective is -loglik from model::EvaluateLikelihood (concentrated Gaussian likelihood),
+// minimised with NLopt's BOBYQA (bounded, derivative-free, quadratic trust-region models; see
+// src/fit/fit.cc for why) over the smoothing parameters, phi and the initial states (level,
+// trend, m-1 seasonal states; the m-th follows from the normalisation). In the usual region the
+// search runs on boxes: alpha, beta* = beta / alpha, gamma* = gamma / (1 - alpha) each in
+// [1e-4, 1 - 1e-4] and phi in [0.8, 0.98], the bounds the reference library uses.
+//
+// Thread-safety: pure functions of their arguments; no globals, so distinct threads may fit at
+// once. The caller's history is read in place (never copied) and must outlive the call.
+
+#include <cstdint>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "plimsoll/base/clock.h"
+#include "plimsoll/base/status.h"
+#include "plimsoll/model/likelihood.h"
+#include "plimsoll/model/params.h"
+#include "plimsoll/model/spec.h"
+#include "plimsoll/model/state.h"
+
+namespace plimsoll::fit {
+
+// How one smoothing parameter (alpha, beta, gamma, phi; state-space convention) is treated.
+// Default: estimated over the region's full range. `fixed` pins it; `lower`/`upper` narrow the
+// search (inclusive). A fixed value or range outside the region fails validation.
+struct ParamControl {
+  std::optional<double> fixed;
+  std::optional<double> lower;
+  std::optional<double> upper;
+};
+
+struct FitOptions {
+  // Season length m of the history; 1 = no seasonal forms. Validated >= 1.
+  int period = 1;
+  // Candidate forms; empty = model::DefaultCandidates(period, positive data). Forms here are
+  // still filtered by `error`, `allow_damped` and the data checks below (with reasons).
+  std::vector<model::ModelSpec> forms;
+  // Restricts the error type of the candidates; unset = both.
+  std::optional<model::ErrorType> error;
+  // False drops damped-trend forms from the candidates.
+  bool allow_damped = true;
+  // Parameter region: kUsual (boxes, default, fast and what practice uses) or kAdmissible
+  // (forecastability, model::CheckParams; wider, alpha up to 2, slower and less smooth).
+  model::ParamRegion region = model::ParamRegion::kUsual;
+  ParamControl alpha, beta, gamma, phi;
+  // Seasonal initial states are estimated only for m <= this; above it they stay at the
+  // heuristic values (each one costs a dimension; the result says so). Validated >= 2.
+  int max_estimated_season = 24;
+  // Likelihood evaluations allowed per form, over all starts. Trade-off: more is closer to the
+  // optimum on hard surfaces, fewer is faster. Validated >= 10.
+  int max_evaluations = 3000;
+  // Wall time allowed per form in seconds (0 = no limit). A fit that hits it keeps its best
+  // point and reports "time budget". Makes results depend on machine speed when it binds.
+  double max_seconds_per_form = 0.0;
+  // Optimiser starts per form (>= 1). The first starts at the heuristic state with alpha 0.5,
+  // beta* 0.1, gamma* 0.1, phi 0.97; further starts vary the smoothing parameters. Each start is
+  // followed by one restart from its optimum with a fresh trust region, which is cheap and
+  // catches early stops.
+  int starts = 1;
+  // Convergence: relative change of -loglik below this ends a start. Validated in (0, 1e-2].
+  double relative_tolerance = 1e-10;
+  // AICc values within this absolute distance of the best are reported as ties.
+  double tie_tolerance = 1e-6;
+};
+
+// Checks every field once: ranges, fixed values inside the region, period >= 1, forms valid for
+// the period. Returns InvalidArgument naming the field.
+Status ValidateOptions(const FitOptions& options);
+
+// Why a fit stopped.
+enum class StopReason : uint8_t {
+  kConverged = 0,         // tolerance reached
+  kEvaluationBudget = 1,  // max_evaluations used up
+  kTimeBudget = 2,        // max_seconds_per_form used up
+  kRoundoff = 3,          // optimiser could not progress further (best point kept)
+};
+// "converged", "evaluation budget", "time budget", "roundoff".
+std::string_view StopReasonName(StopReason reason);
+
+struct FitResult {
+  model::ModelSpec spec;
+  model::Params params;
+  model::State initial_state;  // fitted initial state (sigma2 set to the fitted sigma2)
+  model::State final_state;    // state after the last observation, sigma2 set: ready to forecast
+  double loglik = 0.0;
+  double sigma2 = 0.0;
+  model::InformationCriteria criteria{};
+  int k = 0;                   // parameters counted in the criteria (estimated ones + sigma2)
+  int n = 0;                   // non-missing observations
+  bool converged = false;
+  StopReason stop = StopReason::kConverged;
+  bool seasonal_states_estimated = true;  // false when m > max_estimated_season (heuristic kept)
+  int evaluations = 0;         // likelihood evaluations
+  double seconds = 0.0;        // wall time of this fit
+};
+
+// Fits one form by maximum likelihood. `clock` times the fit and enforces the time budget.
+// Fails with InvalidArgument for bad options, a form that does not suit the data (non-positive
+// values for a multiplicative form, too short a history for a seasonal form, n <= k + 1) with
+// the reason; NumericFailure when no start point has a finite likelihood.
+Result<FitResult> FitModel(const model::ModelSpec& spec, std::span<const double> y, const FitOptions& options,
+                           const Clock& clock = *SystemClock());
+
+enum class CandidateOutcome : uint8_t {
+  kFitted = 0,
+  kSkipped = 1,  // not attempted: the data rule it out (reason says which rule)
+  kFailed = 2,   // attempted, no usable fit (reason says why)
+};
+std::string_view CandidateOutcomeName(CandidateOutcome outcome);  // "fitted", "skipped", "failed"
+
+struct Candidate {
+  model::ModelSpec spec;
+  CandidateOutcome outcome = CandidateOutcome::kFitted;
+  std::string reason;            // empty when fitted
+  std::optional<FitResult> fit;  // set when fitted
+};
+
+struct Selection {
+  // Fitted candidates ranked by AICc (ascending; ties broken by fewer parameters, then candidate
+  // order), then failed ones, then skipped ones, each in candidate order.
+  std::vector<Candidate> candidates;
+  size_t chosen = 0;             // index into candidates (always a fitted one)
+  std::vector<size_t> ties;      // other fitted candidates within tie_tolerance of the chosen AICc
+  bool positive_data = false;    // every non-missing value > 0
+  int n = 0;                     // non-missing observations
+  double seconds = 0.0;
+
+  const FitResult& best() const { return *candidates[chosen].fit; }
+};
+
+// Fits every candidate form and picks the smallest AICc. Skips multiplicative forms for data
+// that are not strictly positive and seasonal forms for histories shorter than 2 periods,
+// recording the reason. Deterministic for a given input unless a time budget binds.
+// Fails with InvalidArgument for bad options, an empty/all-missing or non-finite history, or
+// when no candidate could be fitted (the message lists each candidate's reason).
+Result<Selection> SelectModel(std::span<const double> y, const FitOptions& options,
+                              const Clock& clock = *SystemClock());
+
+}  // namespace plimsoll::fit

@@ -1,0 +1,473 @@
+// Maximum-likelihood fitting of one form.
+//
+// Optimiser: NLopt's BOBYQA (Powell 2009, "The BOBYQA algorithm for bound constrained
+// optimization without derivatives"). Why this one:
+//  - the problem is a box after reparametrisation (alpha, beta*, gamma*, phi; initial states
+//    with generous boxes), which is exactly what BOBYQA handles natively;
+//  - -loglik is smooth in the usual region, so a quadratic trust-region model converges in far
+//    fewer evaluations than simplex methods (Nelder-Mead / Sbplx degrade quickly beyond ~10
+//    dimensions, and a seasonal form with m = 24 has up to 29);
+//  - no derivatives needed: the likelihood is a recursion, numerical gradients would cost
+//    dim + 1 evaluations each and be noisy near the boundary.
+// NLopt rescales each coordinate by its initial step, so the level (data units) and the
+// smoothing parameters (unit interval) share one trust region sensibly.
+#include "plimsoll/fit/fit.h"
+
+#include <nlopt.hpp>
+
+#include <algorithm>
+#include <array>
+#include <cmath>
+#include <limits>
+#include <string>
+#include <vector>
+
+#include "fit/fit_internal.h"
+#include "plimsoll/fit/initial.h"
+
+namespace plimsoll::fit {
+namespace {
+
+using model::ModelSpec;
+using model::Params;
+using model::State;
+
+// Box margin of the reference library (alpha, beta*, gamma* in [1e-4, 1 - 1e-4]); also keeps
+// every smoothing parameter strictly inside the usual region's open bounds.
+constexpr double kEps = 1e-4;
+constexpr double kPhiLow = 0.8;
+constexpr double kPhiHigh = 0.98;
+// Returned for infeasible points (non-finite likelihood, non-positive mu for a positive form,
+// outside the admissible region). Finite so BOBYQA's quadratic model stays finite.
+constexpr double kPenalty = 1e12;
+// Initial states may move this many scale units from their heuristic values.
+constexpr double kStateBox = 1e4;
+// How often (in evaluations) the time budget is checked; a clock read per evaluation would
+// cost more than the evaluation for short series.
+constexpr int kClockEvery = 16;
+
+struct Range {
+  double lo;
+  double hi;
+};
+
+Range Narrow(Range base, const ParamControl& c) {
+  if (c.lower) base.lo = std::max(base.lo, *c.lower);
+  if (c.upper) base.hi = std::min(base.hi, *c.upper);
+  return base;
+}
+
+// Where smoothing parameter starts come from, in (alpha, beta*, gamma*, phi).
+constexpr std::array<std::array<double, 4>, 4> kStarts = {{
+    {0.5, 0.1, 0.1, 0.97},
+    {0.2, 0.05, 0.05, 0.9},
+    {0.9, 0.3, 0.3, 0.98},
+    {0.05, 0.01, 0.01, 0.85},
+}};
+
+// The optimisation problem for one form: decodes the optimiser's vector into (Params, State),
+// evaluates -loglik, remembers the best point.
+class Problem {
+ public:
+  Problem(const ModelSpec& spec, std::span<const double> y, const FitOptions& options, const State& heuristic,
+          double scale, const Clock& clock, int64_t deadline_nanos)
+      : spec_(spec),
+        y_(y),
+        options_(options),
+        heuristic_season_(model::SeasonChronological(heuristic)),
+        clock_(clock),
+        deadline_nanos_(deadline_nanos) {
+    const bool admissible = options.region == model::ParamRegion::kAdmissible;
+    const int m = spec.period;
+    const bool mult_season = spec.season == model::SeasonType::kMultiplicative;
+    estimate_season_ = spec.has_season() && m <= options.max_estimated_season;
+
+    alpha_range_ = Narrow({kEps, admissible ? 2.0 - kEps : 1.0 - kEps}, options.alpha);
+    beta_range_ = Narrow({0.0, admissible ? 4.0 - kEps : 1.0}, options.beta);
+    gamma_range_ = Narrow({0.0, admissible ? 2.0 - kEps : 1.0}, options.gamma);
+    if (admissible) {
+      beta_range_.lo = std::max(beta_range_.lo, kEps);
+      gamma_range_.lo = std::max(gamma_range_.lo, kEps);
+    }
+    phi_range_ = Narrow({kPhiLow, kPhiHigh}, options.phi);
+    if (!admissible) {
+      // A fixed beta or gamma narrows alpha so that beta* and gamma* stay in their boxes.
+      if (spec.has_trend() && options.beta.fixed) {
+        alpha_range_.lo = std::max(alpha_range_.lo, *options.beta.fixed / (1.0 - kEps));
+        alpha_range_.hi = std::min(alpha_range_.hi, *options.beta.fixed / kEps);
+      }
+      if (spec.has_season() && options.gamma.fixed) {
+        alpha_range_.hi = std::min(alpha_range_.hi, 1.0 - *options.gamma.fixed / (1.0 - kEps));
+        alpha_range_.lo = std::max(alpha_range_.lo, 1.0 - *options.gamma.fixed / kEps);
+      }
+    }
+
+    // Appends one coordinate; returns its index. Steps are the initial trust-region radius.
+    auto add = [&](double lo, double hi, double step) {
+      lower_.push_back(lo);
+      upper_.push_back(hi);
+      step_.push_back(std::min(step, 0.5 * (hi - lo)));
+      return static_cast<int>(lower_.size()) - 1;
+    };
+    if (!options.alpha.fixed) i_alpha_ = add(alpha_range_.lo, alpha_range_.hi, 0.05);
+    if (spec.has_trend() && !options.beta.fixed) {
+      // Usual region: the position between the lowest and highest beta allowed given alpha.
+      i_beta_ = admissible ? add(beta_range_.lo, beta_range_.hi, 0.02) : add(0.0, 1.0, 0.05);
+    }
+    if (spec.has_season() && !options.gamma.fixed) {
+      i_gamma_ = admissible ? add(gamma_range_.lo, gamma_range_.hi, 0.02) : add(0.0, 1.0, 0.05);
+    }
+    if (spec.damped() && !options.phi.fixed) i_phi_ = add(phi_range_.lo, phi_range_.hi, 0.01);
+    level0_ = heuristic.level;
+    trend0_ = heuristic.trend;
+    level_scale_ = spec.needs_positive_data() ? std::max(scale, 1e-3 * std::fabs(level0_)) : scale;
+    trend_scale_ = spec.multiplicative_trend() ? 0.01 : 0.1 * level_scale_;
+    season_scale_ = mult_season ? std::max(0.01, std::min(0.1, scale / std::max(std::fabs(level0_), 1e-12))) : scale;
+    i_level_ = add(-kStateBox, kStateBox, 0.2);
+    if (spec.has_trend()) i_trend_ = add(-kStateBox, kStateBox, 0.2);
+    if (estimate_season_) {
+      i_season_ = static_cast<int>(lower_.size());
+      for (int j = 0; j + 1 < m; ++j) add(-kStateBox, kStateBox, 0.2);
+    }
+    season_.resize(heuristic_season_.size());
+  }
+
+  bool estimate_season() const { return estimate_season_; }
+  size_t dim() const { return lower_.size(); }
+  const std::vector<double>& lower() const { return lower_; }
+  const std::vector<double>& upper() const { return upper_; }
+  const std::vector<double>& step() const { return step_; }
+  bool alpha_range_empty() const { return alpha_range_.lo > alpha_range_.hi; }
+
+  // A start vector from method-form smoothing values (alpha, beta*, gamma*, phi) and the
+  // heuristic state, clamped into the boxes.
+  std::vector<double> StartPoint(const std::array<double, 4>& s) const {
+    std::vector<double> z(dim(), 0.0);
+    auto clamp_to = [&](int i, double v) {
+      if (i >= 0) z[static_cast<size_t>(i)] = std::clamp(v, lower_[static_cast<size_t>(i)], upper_[static_cast<size_t>(i)]);
+    };
+    const bool admissible = options_.region == model::ParamRegion::kAdmissible;
+    const double alpha = std::clamp(s[0], alpha_range_.lo, alpha_range_.hi);
+    clamp_to(i_alpha_, alpha);
+    clamp_to(i_beta_, admissible ? alpha * s[1] : s[1]);
+    clamp_to(i_gamma_, admissible ? (1.0 - std::min(alpha, 1.0)) * s[2] : s[2]);
+    clamp_to(i_phi_, s[3]);
+    return z;  // state coordinates 0 = heuristic state
+  }
+
+  // Fills params_ and state_ from z. Returns false when z maps outside the region.
+  bool Decode(const double* z) {
+    const bool admissible = options_.region == model::ParamRegion::kAdmissible;
+    Params& p = params_;
+    p.alpha = i_alpha_ >= 0 ? z[i_alpha_] : *options_.alpha.fixed;
+    p.beta = 0.0;
+    p.gamma = 0.0;
+    p.phi = 1.0;
+    if (spec_.has_trend()) {
+      if (i_beta_ < 0) {
+        p.beta = *options_.beta.fixed;
+      } else if (admissible) {
+        p.beta = z[i_beta_];
+      } else {
+        // beta in [max(lo, eps alpha), min(hi, (1 - eps) alpha)]: with the default range this is
+        // beta* in [eps, 1 - eps], the reference library's box.
+        const double lo = std::max(beta_range_.lo, kEps * p.alpha);
+        const double hi = std::min(beta_range_.hi, (1.0 - kEps) * p.alpha);
+        if (hi < lo) return false;
+        p.beta = lo + z[i_beta_] * (hi - lo);
+      }
+    }
+    if (spec_.has_season()) {
+      if (i_gamma_ < 0) {
+        p.gamma = *options_.gamma.fixed;
+      } else if (admissible) {
+        p.gamma = z[i_gamma_];
+      } else {
+        const double lo = std::max(gamma_range_.lo, kEps * (1.0 - p.alpha));
+        const double hi = std::min(gamma_range_.hi, (1.0 - kEps) * (1.0 - p.alpha));
+        if (hi < lo) return false;
+        p.gamma = lo + z[i_gamma_] * (hi - lo);
+      }
+    }
+    if (spec_.damped()) p.phi = i_phi_ >= 0 ? z[i_phi_] : *options_.phi.fixed;
+
+    const double level = level0_ + level_scale_ * z[i_level_];
+    const double trend = spec_.has_trend() ? trend0_ + trend_scale_ * z[i_trend_] : 0.0;
+    if (spec_.needs_positive_data() && !(level > 0)) return false;
+    if (spec_.multiplicative_trend() && !(trend > 0)) return false;
+    if (spec_.has_season()) {
+      if (estimate_season_) {
+        const bool mult = spec_.season == model::SeasonType::kMultiplicative;
+        const size_t m = season_.size();
+        double sum = 0.0;
+        for (size_t j = 0; j + 1 < m; ++j) {
+          season_[j] = heuristic_season_[j] + season_scale_ * z[static_cast<size_t>(i_season_) + j];
+          sum += season_[j];
+          if (mult && !(season_[j] > 0)) return false;
+        }
+        // Normalisation: sum 0 (additive) or mean 1 (multiplicative).
+        season_[m - 1] = (mult ? static_cast<double>(m) : 0.0) - sum;
+        if (mult && !(season_[m - 1] > 0)) return false;
+      } else {
+        season_ = heuristic_season_;
+      }
+    }
+    state_ = model::MakeState(level, trend, season_);
+    if (admissible && !model::CheckParams(spec_, p, model::ParamRegion::kAdmissible).ok()) return false;
+    return true;
+  }
+
+  double Evaluate(const double* z) {
+    ++evaluations_;
+    if (deadline_nanos_ > 0 && evaluations_ % kClockEvery == 0 && clock_.MonotonicNanos() > deadline_nanos_) {
+      time_exhausted_ = true;
+      if (running_ != nullptr) running_->force_stop();
+    }
+    if (!Decode(z)) return kPenalty;
+    auto result = model::EvaluateLikelihood(spec_, params_, state_, y_);
+    if (!result.ok() || !std::isfinite(result->loglik)) return kPenalty;
+    const double f = -result->loglik;
+    if (f < best_f_) {
+      best_f_ = f;
+      best_z_.assign(z, z + dim());
+    }
+    return f;
+  }
+
+  static double Objective(unsigned /*n*/, const double* z, double* /*grad*/, void* data) {
+    return static_cast<Problem*>(data)->Evaluate(z);
+  }
+
+  void set_running(nlopt::opt* opt) { running_ = opt; }
+  int evaluations() const { return evaluations_; }
+  bool time_exhausted() const { return time_exhausted_; }
+  double best_f() const { return best_f_; }
+  const std::vector<double>& best_z() const { return best_z_; }
+  const Params& params() const { return params_; }
+  const State& state() const { return state_; }
+
+ private:
+  const ModelSpec& spec_;
+  std::span<const double> y_;
+  const FitOptions& options_;
+  std::vector<double> heuristic_season_;
+  const Clock& clock_;
+  int64_t deadline_nanos_;
+  bool estimate_season_ = false;
+
+  Range alpha_range_{}, beta_range_{}, gamma_range_{}, phi_range_{};
+  int i_alpha_ = -1, i_beta_ = -1, i_gamma_ = -1, i_phi_ = -1;
+  int i_level_ = -1, i_trend_ = -1, i_season_ = -1;
+  double level0_ = 0, trend0_ = 0, level_scale_ = 1, trend_scale_ = 1, season_scale_ = 1;
+  std::vector<double> lower_, upper_, step_;
+
+  std::vector<double> season_;
+  Params params_;
+  State state_;
+  int evaluations_ = 0;
+  bool time_exhausted_ = false;
+  nlopt::opt* running_ = nullptr;
+  double best_f_ = std::numeric_limits<double>::infinity();
+  std::vector<double> best_z_;
+};
+
+// A noise scale for the level and additive seasonal coordinates: root mean square of the
+// differences of consecutive observations (falls back to the mean absolute value, then 1).
+double NoiseScale(std::span<const double> y) {
+  double sum_sq = 0.0, sum_abs = 0.0, prev = std::numeric_limits<double>::quiet_NaN();
+  int diffs = 0, count = 0;
+  for (double v : y) {
+    if (std::isnan(v)) continue;
+    if (!std::isnan(prev)) {
+      sum_sq += (v - prev) * (v - prev);
+      ++diffs;
+    }
+    prev = v;
+    sum_abs += std::fabs(v);
+    ++count;
+  }
+  if (diffs > 0 && sum_sq > 0) return std::sqrt(sum_sq / diffs);
+  if (count > 0 && sum_abs > 0) return 0.01 * sum_abs / count;
+  return 1.0;
+}
+
+// One BOBYQA run from z; returns how it ended. The best point lives in `problem`.
+StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, double tolerance) {
+  nlopt::opt opt(nlopt::LN_BOBYQA, static_cast<unsigned>(problem.dim()));
+  opt.set_lower_bounds(problem.lower());
+  opt.set_upper_bounds(problem.upper());
+  opt.set_initial_step(problem.step());
+  opt.set_min_objective(&Problem::Objective, &problem);
+  opt.set_ftol_rel(tolerance);
+  opt.set_xtol_rel(1e-9);
+  opt.set_maxeval(max_evals);
+  problem.set_running(&opt);
+  double f = 0.0;
+  StopReason reason = StopReason::kConverged;
+  // nlopt.hpp reports some endings by exception; they are outcomes here, not errors.
+  try {
+    const nlopt::result r = opt.optimize(z, f);
+    if (r == nlopt::MAXEVAL_REACHED) reason = StopReason::kEvaluationBudget;
+  } catch (const nlopt::forced_stop&) {
+    reason = StopReason::kTimeBudget;
+  } catch (const nlopt::roundoff_limited&) {
+    reason = StopReason::kRoundoff;
+  } catch (const std::exception&) {
+    reason = StopReason::kRoundoff;
+  }
+  problem.set_running(nullptr);
+  if (problem.time_exhausted()) reason = StopReason::kTimeBudget;
+  return reason;
+}
+
+}  // namespace
+
+std::string_view StopReasonName(StopReason reason) {
+  switch (reason) {
+    case StopReason::kConverged: return "converged";
+    case StopReason::kEvaluationBudget: return "evaluation budget";
+    case StopReason::kTimeBudget: return "time budget";
+    case StopReason::kRoundoff: return "roundoff";
+  }
+  return "unknown";
+}
+
+Status CheckFormSuitsData(const ModelSpec& spec, std::span<const double> y, const DataSummary& data,
+                          const FitOptions& options) {
+  if (spec.needs_positive_data() && !data.positive) {
+    return Status::InvalidArgument("needs strictly positive data; observation " +
+                                   std::to_string(data.first_non_positive) + " is " +
+                                   FormatValue(y[data.first_non_positive]));
+  }
+  if (spec.has_season() && y.size() < static_cast<size_t>(kMinSeasonalPeriods) * static_cast<size_t>(spec.period)) {
+    return Status::InvalidArgument("needs " + std::to_string(kMinSeasonalPeriods) + " full periods (" +
+                                   std::to_string(kMinSeasonalPeriods * spec.period) +
+                                   " observations); history has " + std::to_string(y.size()));
+  }
+  const int k = CountEstimated(spec, options);
+  if (data.n <= k + 1) {
+    return Status::InvalidArgument("needs more than " + std::to_string(k + 1) + " observations for " +
+                                   std::to_string(k) + " parameters; history has " + std::to_string(data.n));
+  }
+  return Status::Ok();
+}
+
+int CountEstimated(const ModelSpec& spec, const FitOptions& options) {
+  int k = model::CountParameters(spec);
+  if (options.alpha.fixed) --k;
+  if (spec.has_trend() && options.beta.fixed) --k;
+  if (spec.has_season() && options.gamma.fixed) --k;
+  if (spec.damped() && options.phi.fixed) --k;
+  if (spec.has_season() && spec.period > options.max_estimated_season) k -= spec.period - 1;
+  return k;
+}
+
+Result<DataSummary> SummariseData(std::span<const double> y) {
+  DataSummary s;
+  for (size_t i = 0; i < y.size(); ++i) {
+    const double v = y[i];
+    if (std::isnan(v)) continue;
+    if (!std::isfinite(v)) {
+      return Status::InvalidArgument("observation " + std::to_string(i) + " is infinite");
+    }
+    ++s.n;
+    if (v <= 0 && s.positive) {
+      s.positive = false;
+      s.first_non_positive = i;
+    }
+  }
+  if (s.n == 0) return Status::InvalidArgument("history has no observations (empty or all missing)");
+  return s;
+}
+
+std::string FormatValue(double v) {
+  char buf[32];
+  std::snprintf(buf, sizeof(buf), "%.6g", v);
+  return buf;
+}
+
+Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y, const DataSummary& data,
+                               const FitOptions& options, const Clock& clock) {
+  const int64_t start_nanos = clock.MonotonicNanos();
+  PLIMSOLL_RETURN_IF_ERROR(CheckFormSuitsData(spec, y, data, options).WithContext(spec.Notation()));
+  auto heuristic = HeuristicState(spec, y);
+  if (!heuristic.ok()) return heuristic.status();
+
+  const int64_t deadline =
+      options.max_seconds_per_form > 0 ? start_nanos + static_cast<int64_t>(options.max_seconds_per_form * 1e9) : 0;
+  Problem problem(spec, y, options, *heuristic, NoiseScale(y), clock, deadline);
+  if (problem.alpha_range_empty()) {
+    return Status::InvalidArgument(spec.Notation() + ": the fixed beta/gamma and the alpha range leave no room for alpha");
+  }
+
+  FitResult out;
+  out.spec = spec;
+  out.seasonal_states_estimated = !spec.has_season() || problem.estimate_season();
+  StopReason stop = StopReason::kConverged;
+  const int starts = std::min<int>(options.starts, static_cast<int>(kStarts.size()));
+  for (int s = 0; s < starts; ++s) {
+    std::vector<double> z = problem.StartPoint(kStarts[static_cast<size_t>(s)]);
+    if (problem.Evaluate(z.data()) >= kPenalty) continue;  // infeasible start: try the next
+    const int left = options.max_evaluations - problem.evaluations();
+    if (left <= 0) {
+      stop = StopReason::kEvaluationBudget;
+      break;
+    }
+    stop = RunOnce(problem, z, left, options.relative_tolerance);
+    if (stop == StopReason::kTimeBudget) break;
+    // Restart from the best point with a fresh trust region: BOBYQA sometimes stops while its
+    // interpolation set is degenerate; a restart that finds nothing costs ~2 dim + 1 evaluations.
+    const int left_after = options.max_evaluations - problem.evaluations();
+    if (left_after <= 0) {
+      stop = StopReason::kEvaluationBudget;
+      break;
+    }
+    const double before = problem.best_f();
+    stop = RunOnce(problem, problem.best_z(), left_after, options.relative_tolerance);
+    if (stop == StopReason::kTimeBudget) break;
+    // A restart that still improved noticeably gets one more round.
+    if (problem.best_f() < before - 1e-7 * std::fabs(before)) {
+      const int left_more = options.max_evaluations - problem.evaluations();
+      if (left_more > 0) stop = RunOnce(problem, problem.best_z(), left_more, options.relative_tolerance);
+      else stop = StopReason::kEvaluationBudget;
+      if (stop == StopReason::kTimeBudget) break;
+    }
+  }
+  if (problem.best_z().empty()) {
+    return Status::NumericFailure(spec.Notation() + ": no start point has a finite likelihood");
+  }
+  if (!problem.Decode(problem.best_z().data())) {
+    return Status::Internal(spec.Notation() + ": best point does not decode");
+  }
+  out.params = problem.params();
+  out.initial_state = problem.state();
+  auto final_lik = model::EvaluateLikelihood(spec, out.params, out.initial_state, y);
+  if (!final_lik.ok()) return final_lik.status().WithContext(spec.Notation());
+  out.loglik = final_lik->loglik;
+  out.sigma2 = final_lik->sigma2;
+  out.n = final_lik->n;
+  out.final_state = std::move(final_lik->final_state);
+  out.final_state.sigma2 = out.sigma2;
+  out.initial_state.sigma2 = out.sigma2;
+  out.k = CountEstimated(spec, options);
+  out.criteria = model::Criteria(out.loglik, out.n, out.k);
+  out.stop = stop;
+  out.converged = stop == StopReason::kConverged;
+  out.evaluations = problem.evaluations();
+  out.seconds = static_cast<double>(clock.MonotonicNanos() - start_nanos) * 1e-9;
+  return out;
+}
+
+Result<FitResult> FitModel(const ModelSpec& spec, std::span<const double> y, const FitOptions& options,
+                           const Clock& clock) {
+  PLIMSOLL_RETURN_IF_ERROR(ValidateOptions(options));
+  if (spec.has_season() && spec.period != options.period) {
+    return Status::InvalidArgument("form period " + std::to_string(spec.period) + " differs from options.period " +
+                                   std::to_string(options.period));
+  }
+  auto data = SummariseData(y);
+  if (!data.ok()) return data.status();
+  return FitValidated(spec, y, *data, options, clock);
+}
+
+}  // namespace plimsoll::fit

@@ -1,0 +1,41 @@
+#pragma once
+// Pieces shared by fit.cc and select.cc (internal to the fit module).
+
+#include <cstddef>
+#include <span>
+#include <string>
+
+#include "plimsoll/base/clock.h"
+#include "plimsoll/base/status.h"
+#include "plimsoll/fit/fit.h"
+#include "plimsoll/model/spec.h"
+
+namespace plimsoll::fit {
+
+// What one pass over the history learns.
+struct DataSummary {
+  int n = 0;                      // non-missing observations
+  bool positive = true;           // every non-missing value > 0
+  size_t first_non_positive = 0;  // index of the first value <= 0 when !positive
+};
+
+// Fails with InvalidArgument for an infinite value (naming its index) or no observations.
+Result<DataSummary> SummariseData(std::span<const double> y);
+
+// Parameters counted in the information criteria for `spec` under `options` (fixed smoothing
+// parameters and unestimated seasonal states excluded; sigma^2 included).
+int CountEstimated(const model::ModelSpec& spec, const FitOptions& options);
+
+// OK when `spec` can be fitted to this history; otherwise InvalidArgument with the reason
+// (positive data, two full periods, more observations than parameters + 1).
+Status CheckFormSuitsData(const model::ModelSpec& spec, std::span<const double> y, const DataSummary& data,
+                          const FitOptions& options);
+
+// FitModel after options and data have been checked once.
+Result<FitResult> FitValidated(const model::ModelSpec& spec, std::span<const double> y, const DataSummary& data,
+                               const FitOptions& options, const Clock& clock);
+
+// "%.6g" of v, for messages.
+std::string FormatValue(double v);
+
+}  // namespace plimsoll::fit
