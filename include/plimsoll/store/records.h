@@ -1,0 +1,137 @@
+#pragma once
+// Rows the store writes and reads, and the CommitBatch that carries one group commit.
+//
+// The store never interprets model states: they arrive as opaque encoded bytes and come back
+// bit-identical. Series are named by their string id; the store maps names to integer keys.
+// Times are milliseconds since the Unix epoch; steps are the series' interval-grid index.
+//
+// Thread-safety: plain value types.
+
+#include <cstdint>
+#include <limits>
+#include <optional>
+#include <string>
+#include <vector>
+
+namespace plimsoll::store {
+
+inline constexpr double kNoValue = std::numeric_limits<double>::quiet_NaN();  // stored as NULL
+
+// One series' identity. Committed rows may only name series that exist in the store or appear
+// in the same batch's `series` list.
+struct SeriesRecord {
+  std::string name;     // the series id as it arrives in records
+  std::string profile;  // the [[profile]] that matched it
+  int64_t created_ms = 0;
+};
+
+// The model in force for a series (one row per series; changes are also logged as events).
+// Parameters the form lacks (beta without trend, gamma without season, phi undamped) are NaN.
+struct ModelRecord {
+  std::string series;
+  std::string spec;  // published taxonomy, e.g. "ETS(M,Ad,M)"
+  int32_t period = 1;
+  double alpha = kNoValue, beta = kNoValue, gamma = kNoValue, phi = kNoValue;
+  double sigma2 = kNoValue;  // innovation variance
+  double loglik = kNoValue;
+  double aicc = kNoValue;
+  int64_t fitted_ms = 0;
+  std::string reason;  // why this model was chosen now: "warmup", "refit", "reseed", ...
+  friend bool operator==(const ModelRecord&, const ModelRecord&) = default;
+};
+
+// A checkpoint of one series' state after `step`.
+struct StateRecord {
+  std::string series;
+  int64_t step = 0;
+  int64_t time_ms = 0;
+  std::string encoded;  // opaque bytes from the model module, returned bit-identical
+};
+
+// One accepted observation, appended to the series' history (what refits read).
+struct HistoryPoint {
+  std::string series;
+  int64_t step = 0;
+  double value = 0;
+};
+
+// An observation outside its one-step interval. Its id is (series, step): re-committing the
+// same flag after a crash is ignored.
+struct FlagRecord {
+  std::string series;
+  int64_t step = 0;
+  int64_t time_ms = 0;
+  double value = 0, expected = 0, lower = 0, upper = 0;
+  double level = 0;  // two-sided band level, e.g. 0.99
+  double score = 0;  // standardised innovation
+  std::string form;  // model spec that produced the band
+  friend bool operator==(const FlagRecord&, const FlagRecord&) = default;
+};
+
+// Never renumber: stored as text ("raised"/"cleared"), and the enum order is part of the API.
+enum class AlertKind : int { kRaised = 0, kCleared = 1 };
+
+// One alert transition. Its id is (series, step, kind); duplicates are ignored.
+struct AlertRecord {
+  std::string series;
+  int64_t step = 0;
+  int64_t time_ms = 0;
+  AlertKind kind = AlertKind::kRaised;
+  std::string detail;  // JSON object text, free-form
+  friend bool operator==(const AlertRecord&, const AlertRecord&) = default;
+};
+
+// A record the engine could not accept. `raw` is truncated to StoreOptions::dead_letter_max_bytes.
+struct DeadLetterRecord {
+  int64_t received_ms = 0;
+  std::string stream;
+  int32_t partition = 0;
+  int64_t offset = -1;
+  std::string raw;
+  std::string reason;     // names the key/field/line at fault
+  int32_t status_code = 0;  // plimsoll::StatusCode value
+};
+
+// Something that happened to a series (model change, reseed, gap) or to the daemon.
+struct EventRecord {
+  int64_t time_ms = 0;
+  std::string series;  // empty for daemon-wide events
+  std::string kind;    // short tag, e.g. "model_changed"
+  std::string detail;  // JSON object text
+};
+
+// The next offset to read from one stream partition, stored atomically with the states it produced.
+struct PositionRecord {
+  std::string stream;
+  int32_t partition = 0;
+  int64_t next_offset = 0;
+  friend bool operator==(const PositionRecord&, const PositionRecord&) = default;
+};
+
+// Everything one group commit writes, in ONE transaction. Store::Commit takes it by const
+// reference: on failure it stays with the caller, whole, to be retried.
+struct CommitBatch {
+  std::vector<SeriesRecord> series;  // new series (existing names are left unchanged)
+  std::vector<ModelRecord> models;   // upserted per series
+  std::vector<StateRecord> states;   // upserted per series
+  std::vector<HistoryPoint> history;
+  std::vector<FlagRecord> flags;     // duplicates of (series, step) ignored
+  std::vector<AlertRecord> alerts;   // duplicates of (series, step, kind) ignored
+  std::vector<DeadLetterRecord> dead_letters;
+  std::vector<EventRecord> events;
+  std::vector<PositionRecord> positions;  // upserted per (stream, partition)
+
+  // Total number of records in the batch.
+  size_t size() const {
+    return series.size() + models.size() + states.size() + history.size() + flags.size() + alerts.size() +
+           dead_letters.size() + events.size() + positions.size();
+  }
+  bool empty() const { return size() == 0; }
+  // Empties every list, keeping capacity for the next interval.
+  void Clear() {
+    series.clear(), models.clear(), states.clear(), history.clear(), flags.clear(), alerts.clear();
+    dead_letters.clear(), events.clear(), positions.clear();
+  }
+};
+
+}  // namespace plimsoll::store

@@ -1,0 +1,186 @@
+#pragma once
+// Store: plimsoll's durable state in one SQLite file (WAL mode).
+//
+// The engine owns one read-write Store on its owner thread and hands it a CommitBatch per group
+// commit; Commit writes the whole batch in ONE transaction, so the source positions and the
+// states they produced become durable together (exactly-once effect on states). Readers (the
+// `inspect` verb, HTTP) open their own Store with read_only = true; WAL lets them read while the
+// writer commits. Schema, durability levels and failure behaviour: notes/store-docs.md.
+//
+// Thread-safety: a Store is used by one thread at a time (no internal locking).
+
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "plimsoll/base/clock.h"
+#include "plimsoll/base/status.h"
+#include "plimsoll/store/records.h"
+
+namespace plimsoll::store {
+
+// How hard SQLite works to make a commit survive a crash (PRAGMA synchronous, WAL mode).
+// Never renumber: the value appears in config and logs.
+enum class Synchronous : int {
+  // No fsync at all. Survives a process crash (kill -9): the data is in the OS page cache.
+  // An OS crash or power cut may lose recent commits and may corrupt the file. Benchmarks only.
+  kOff = 0,
+  // fsync the WAL at checkpoints, not at each commit. Survives a process crash; a power cut or OS
+  // crash can roll back the last commits (positions and states roll back together, so the source
+  // re-reads them: exactly-once effect holds, flags may be re-published). The default.
+  kNormal = 1,
+  // fsync the WAL at every commit: a returned commit survives a power cut too. Costs one fsync
+  // (milliseconds on most disks) per group commit.
+  kFull = 2,
+};
+
+// Returns "off", "normal" or "full".
+std::string_view SynchronousName(Synchronous level);
+// Parses "off" / "normal" / "full" (case-insensitive); InvalidArgument naming the text otherwise.
+Result<Synchronous> ParseSynchronous(std::string_view text);
+
+struct StoreOptions {
+  std::string path;  // SQLite file; created (with its -wal/-shm side files) when missing
+  Synchronous synchronous = Synchronous::kNormal;
+  // Open for reading only: no migration, Commit fails with Unavailable. For `inspect` and HTTP.
+  bool read_only = false;
+  // SQLite's own wait for a lock held by another connection, per attempt (ms, clamped to 0..60000).
+  int busy_timeout_ms = 200;
+  // Our retries of a whole transaction that still met SQLITE_BUSY after busy_timeout_ms
+  // (clamped to 0..100). Total wait is bounded by roughly retries x (timeout + backoff).
+  int busy_retries = 5;
+  // Sleep before retry k is min(backoff_initial_ms x 2^k, backoff_max_ms) (ms, >= 0).
+  int backoff_initial_ms = 10;
+  int backoff_max_ms = 1000;
+  // Dead-letter raw records longer than this are truncated (bytes, clamped to 16..1 MiB); the
+  // original size is kept in raw_size.
+  int dead_letter_max_bytes = 4096;
+  // Points per history chunk (clamped to 16..65536). Larger chunks: fewer rows, costlier rewrites.
+  int history_chunk_points = 512;
+  // Commit moves the history log into per-series chunks once it holds this many points
+  // (clamped to >= 1000). Higher: faster commits, longer pauses at compaction and slower
+  // history reads (a read scans the whole log).
+  int64_t history_compact_points = 1'000'000;
+  // SQLite page cache (KiB). Bigger keeps more of the state table in memory.
+  int cache_kib = 64 * 1024;
+  // WAL pages before SQLite checkpoints into the main file (SQLite's default is 1000).
+  // Larger: fewer checkpoint pauses, bigger -wal file and slower recovery after a crash.
+  int wal_autocheckpoint_pages = 4000;
+  Clock* clock = SystemClock();  // measures commit durations; never null
+};
+
+// Cumulative figures since Open, for metrics.
+struct StoreCounters {
+  uint64_t commits = 0;              // successful Commit calls
+  uint64_t commit_failures = 0;      // Commit calls that returned an error (batch left with caller)
+  uint64_t busy_retries = 0;         // transactions retried after SQLITE_BUSY
+  uint64_t rows_written = 0;         // rows inserted or updated by successful commits
+  uint64_t states_written = 0;
+  uint64_t history_points = 0;
+  uint64_t flags_written = 0;
+  uint64_t flags_duplicate = 0;      // flags ignored because (series, step) was already stored
+  uint64_t alerts_written = 0;
+  uint64_t alerts_duplicate = 0;
+  uint64_t dead_letters = 0;
+  uint64_t compactions = 0;          // history log compactions that succeeded
+  uint64_t compaction_failures = 0;  // failed compactions (the log is kept; retried later)
+  int64_t last_commit_micros = 0;    // duration of the last successful Commit
+  int64_t max_commit_micros = 0;
+  StatusCode last_error = StatusCode::kOk;  // code of the most recent failure
+};
+
+// One series with its current model and state, as loaded at start-up or shown by `inspect`.
+struct StoredSeries {
+  SeriesRecord series;
+  std::optional<ModelRecord> model;
+  std::optional<StateRecord> state;
+};
+
+// A dead letter as stored: the store's id and the raw record's size before truncation.
+struct StoredDeadLetter {
+  int64_t id = 0;
+  int64_t raw_size = 0;
+  DeadLetterRecord record;
+};
+
+// The last points of one series on its step grid: values[i] is step first_step + i, NaN where no
+// observation was stored (gap steps).
+struct HistorySlice {
+  int64_t first_step = 0;
+  std::vector<double> values;
+};
+
+class Store {
+ public:
+  // Opens (creating and migrating when read-write) the store at options.path; options are
+  // validated and clamped here. Fails with the SQLite status (IoError when the file cannot be
+  // opened, Corruption for a foreign or damaged file, Unavailable for a read-only file opened
+  // read-write or a schema this build cannot read).
+  static Result<std::unique_ptr<Store>> Open(StoreOptions options);
+
+  Store(const Store&) = delete;
+  Store& operator=(const Store&) = delete;
+  ~Store();
+
+  // Writes every record of `batch` in one transaction: all of it becomes durable, or none of it.
+  // Retries SQLITE_BUSY (busy_timeout_ms, then busy_retries with backoff) and returns Busy after
+  // that; IoError (disk full, I/O error), Unavailable (read-only) and InvalidArgument (a record
+  // names a series neither stored nor in batch.series) leave nothing written. On any error the
+  // batch is untouched, so the caller keeps it and retries. Duplicate flags/alerts are ignored.
+  Status Commit(const CommitBatch& batch);
+
+  // Moves up to `max_log_rows` oldest history-log rows (one per commit) into per-series chunks,
+  // in one transaction. Commit calls this itself past history_compact_points; exposed for tests
+  // and for an engine that prefers to compact when idle.
+  Status CompactHistory(int64_t max_log_rows = INT64_MAX);
+
+  // Calls `visit` for every series in id order with its model and state (start-up load).
+  // Stops and returns the first non-OK status `visit` returns.
+  Status ForEachSeries(const std::function<Status(const StoredSeries&)>& visit);
+
+  // One series with its model and state; NotFound naming the series when it is not stored.
+  Result<StoredSeries> GetSeries(std::string_view name);
+
+  // Series in name order, starting after `after_name` (empty: from the start), at most `limit`;
+  // states are omitted (StoredSeries::state holds step and time but an empty `encoded`).
+  Result<std::vector<StoredSeries>> ListSeries(size_t limit, std::string_view after_name = {});
+
+  // Newest first, at most `limit`. `series` empty means all series. NotFound for an unknown series.
+  Result<std::vector<FlagRecord>> RecentFlags(std::string_view series, size_t limit);
+  Result<std::vector<AlertRecord>> RecentAlerts(std::string_view series, size_t limit);
+  Result<std::vector<EventRecord>> RecentEvents(std::string_view series, size_t limit);
+  Result<std::vector<StoredDeadLetter>> RecentDeadLetters(size_t limit);
+
+  // The last `n` steps of a series' history (ending at its newest stored step), compacted chunks
+  // and the not-yet-compacted log together. Empty slice when the series has no history;
+  // NotFound for an unknown series.
+  Result<HistorySlice> HistoryTail(std::string_view series, size_t n);
+
+  // The stored next offset of a stream partition, or nullopt when none is stored (the
+  // plimsoll::stream::PositionLookup contract). Served from memory; never touches the file.
+  std::optional<int64_t> StoredPosition(std::string_view stream, int32_t partition) const;
+  // Every stored position, ordered by (stream, partition).
+  std::vector<PositionRecord> Positions() const;
+
+  const StoreCounters& counters() const;
+  const StoreOptions& options() const;  // as validated and clamped by Open
+
+  // Test hook: the next Commit fails with `status` after writing `rows` rows inside its
+  // transaction (which is rolled back, as for a real mid-commit failure). One-shot.
+  void TEST_FailNextCommitAfterRows(int64_t rows, Status status);
+  // Test hook: caps the file at `pages` pages (PRAGMA max_page_count) so writes hit SQLITE_FULL
+  // as on a full disk; 0 removes the cap.
+  Status TEST_LimitPages(int64_t pages);
+
+ private:
+  class Impl;
+  explicit Store(std::unique_ptr<Impl> impl);
+
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace plimsoll::store

@@ -1,0 +1,154 @@
+#include "store/schema.h"
+
+#include <string>
+
+namespace plimsoll::store {
+namespace {
+
+// Times are integer milliseconds since the Unix epoch (*_ms); steps are interval-grid indices.
+// Foreign keys are declared for documentation; enforcement stays off (PRAGMA foreign_keys) because
+// the single writer resolves every series name before writing and the checks would cost commit time.
+constexpr Migration kMigrations[] = {
+    {1, "core tables: series, model, state, flags, alerts, dead letters, events, source positions",
+     R"sql(
+CREATE TABLE series (
+  id         INTEGER PRIMARY KEY,
+  name       TEXT NOT NULL UNIQUE,
+  profile    TEXT NOT NULL,
+  created_ms INTEGER NOT NULL
+);
+CREATE TABLE model (
+  series    INTEGER PRIMARY KEY REFERENCES series(id),
+  spec      TEXT NOT NULL,
+  period    INTEGER NOT NULL,
+  alpha     REAL, beta REAL, gamma REAL, phi REAL,
+  sigma2    REAL, loglik REAL, aicc REAL,
+  fitted_ms INTEGER NOT NULL,
+  reason    TEXT NOT NULL
+);
+CREATE TABLE state (
+  series  INTEGER PRIMARY KEY REFERENCES series(id),
+  step    INTEGER NOT NULL,
+  time_ms INTEGER NOT NULL,
+  encoded BLOB NOT NULL
+);
+CREATE TABLE flags (
+  series   INTEGER NOT NULL REFERENCES series(id),
+  step     INTEGER NOT NULL,
+  time_ms  INTEGER NOT NULL,
+  value    REAL, expected REAL, lower REAL, upper REAL,
+  level    REAL, score REAL,
+  form     TEXT NOT NULL,
+  PRIMARY KEY (series, step)
+) WITHOUT ROWID;
+CREATE INDEX flags_by_time ON flags(time_ms);
+CREATE TABLE alerts (
+  series  INTEGER NOT NULL REFERENCES series(id),
+  step    INTEGER NOT NULL,
+  kind    TEXT NOT NULL CHECK (kind IN ('raised', 'cleared')),
+  time_ms INTEGER NOT NULL,
+  detail  TEXT NOT NULL,
+  PRIMARY KEY (series, step, kind)
+) WITHOUT ROWID;
+CREATE INDEX alerts_by_time ON alerts(time_ms);
+CREATE TABLE dead_letters (
+  id          INTEGER PRIMARY KEY,
+  received_ms INTEGER NOT NULL,
+  stream      TEXT NOT NULL,
+  partition   INTEGER NOT NULL,
+  source_offset INTEGER NOT NULL,
+  raw         BLOB NOT NULL,
+  raw_size    INTEGER NOT NULL,
+  reason      TEXT NOT NULL,
+  status_code INTEGER NOT NULL
+);
+CREATE TABLE events (
+  id      INTEGER PRIMARY KEY,
+  time_ms INTEGER NOT NULL,
+  series  INTEGER REFERENCES series(id),
+  kind    TEXT NOT NULL,
+  detail  TEXT NOT NULL
+);
+CREATE INDEX events_by_series ON events(series, id);
+CREATE TABLE source_positions (
+  stream      TEXT NOT NULL,
+  partition   INTEGER NOT NULL,
+  next_offset INTEGER NOT NULL,
+  PRIMARY KEY (stream, partition)
+) WITHOUT ROWID;
+)sql"},
+    {2, "per-series history: packed append log plus per-series chunks for refits",
+     R"sql(
+CREATE TABLE history_log (
+  seq    INTEGER PRIMARY KEY,
+  count  INTEGER NOT NULL,
+  points BLOB NOT NULL
+);
+CREATE TABLE history (
+  series     INTEGER NOT NULL REFERENCES series(id),
+  first_step INTEGER NOT NULL,
+  count      INTEGER NOT NULL,
+  points     BLOB NOT NULL,
+  PRIMARY KEY (series, first_step)
+) WITHOUT ROWID;
+)sql"},
+};
+
+Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }
+
+Status CheckApplication(SqliteDb& db, int64_t version) {
+  Result<int64_t> app = db.QueryInt("PRAGMA application_id");
+  if (!app.ok()) return app.status();
+  if (*app == kApplicationId) return Status::Ok();
+  if (*app == 0 && version == 0) {
+    // A fresh file, or someone else's SQLite database that never set an application id.
+    Result<int64_t> objects = db.QueryInt("SELECT count(*) FROM sqlite_schema");
+    if (!objects.ok()) return objects.status();
+    if (*objects == 0) return Status::Ok();
+  }
+  return Status::Corruption("'" + db.path() + "' is an SQLite database but not a plimsoll store (application_id " +
+                            std::to_string(*app) + ")");
+}
+
+}  // namespace
+
+std::span<const Migration> Migrations() { return kMigrations; }
+
+int LatestSchemaVersion() { return kMigrations[std::size(kMigrations) - 1].version; }
+
+Status MigrateSchema(SqliteDb& db, int target_version) {
+  Result<int64_t> version = UserVersion(db);
+  if (!version.ok()) return version.status().WithContext("reading schema version of '" + db.path() + "'");
+  PLIMSOLL_RETURN_IF_ERROR(CheckApplication(db, *version));
+  if (*version > LatestSchemaVersion()) {
+    return Status::Unavailable("store '" + db.path() + "' has schema version " + std::to_string(*version) +
+                               ", newer than this build's " + std::to_string(LatestSchemaVersion()));
+  }
+  for (const Migration& step : kMigrations) {
+    if (step.version <= *version || step.version > target_version) continue;
+    PLIMSOLL_RETURN_IF_ERROR(db.Exec("BEGIN IMMEDIATE"));
+    Status status = db.Exec(step.sql);
+    if (status.ok()) status = db.Exec("PRAGMA application_id = " + std::to_string(kApplicationId));
+    if (status.ok()) status = db.Exec("PRAGMA user_version = " + std::to_string(step.version));
+    if (status.ok()) status = db.Exec("COMMIT");
+    if (!status.ok()) {
+      if (!db.autocommit()) IgnoreError(db.Exec("ROLLBACK"));  // the step's own error is the one to report
+      return status.WithContext("migrating '" + db.path() + "' to schema version " + std::to_string(step.version));
+    }
+  }
+  return Status::Ok();
+}
+
+Status CheckSchema(SqliteDb& db) {
+  Result<int64_t> version = UserVersion(db);
+  if (!version.ok()) return version.status().WithContext("reading schema version of '" + db.path() + "'");
+  PLIMSOLL_RETURN_IF_ERROR(CheckApplication(db, *version));
+  if (*version != LatestSchemaVersion()) {
+    return Status::Unavailable("store '" + db.path() + "' has schema version " + std::to_string(*version) +
+                               ", this build reads " + std::to_string(LatestSchemaVersion()) +
+                               (*version < LatestSchemaVersion() ? "; open it once read-write to migrate it" : ""));
+  }
+  return Status::Ok();
+}
+
+}  // namespace plimsoll::store

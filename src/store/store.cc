@@ -1,0 +1,816 @@
+#include "plimsoll/store/store.h"
+
+#include <spdlog/spdlog.h>
+
+#include <algorithm>
+#include <bit>
+#include <chrono>
+#include <cmath>
+#include <cstring>
+#include <map>
+#include <thread>
+#include <unordered_map>
+
+#include "store/schema.h"
+#include "store/sqlite.h"
+
+namespace plimsoll::store {
+namespace {
+
+// History blobs are native little-endian arrays; refuse to build where that would not hold.
+static_assert(std::endian::native == std::endian::little, "history blobs assume a little-endian host");
+
+// One history-log entry: series key, step, value (24 bytes, packed with memcpy).
+constexpr size_t kLogPointBytes = 3 * sizeof(int64_t);
+
+struct StringHash {
+  using is_transparent = void;
+  size_t operator()(std::string_view s) const { return std::hash<std::string_view>{}(s); }
+};
+
+// Counts of one batch, applied to StoreCounters only when its transaction commits.
+struct Tally {
+  int64_t rows = 0;
+  uint64_t states = 0, history = 0, flags = 0, flags_duplicate = 0, alerts = 0, alerts_duplicate = 0, dead = 0;
+};
+
+std::string_view AlertKindText(AlertKind kind) { return kind == AlertKind::kRaised ? "raised" : "cleared"; }
+
+double RealOrNaN(const Statement& stmt, int col) { return stmt.IsNull(col) ? kNoValue : stmt.Real(col); }
+
+void AppendPoint(std::string& out, int64_t series, int64_t step, double value) {
+  char buf[kLogPointBytes];
+  std::memcpy(buf, &series, 8);
+  std::memcpy(buf + 8, &step, 8);
+  std::memcpy(buf + 16, &value, 8);
+  out.append(buf, kLogPointBytes);
+}
+
+struct LogPoint {
+  int64_t series, step;
+  double value;
+};
+
+LogPoint ReadPoint(const char* p) {
+  LogPoint point;
+  std::memcpy(&point.series, p, 8);
+  std::memcpy(&point.step, p + 8, 8);
+  std::memcpy(&point.value, p + 16, 8);
+  return point;
+}
+
+std::vector<double> ReadDoubles(std::string_view blob) {
+  std::vector<double> values(blob.size() / sizeof(double));
+  if (!values.empty()) std::memcpy(values.data(), blob.data(), values.size() * sizeof(double));
+  return values;
+}
+
+std::string_view DoublesView(const std::vector<double>& values) {
+  return {reinterpret_cast<const char*>(values.data()), values.size() * sizeof(double)};
+}
+
+constexpr const char* kSeriesSelect =
+    "SELECT s.id, s.name, s.profile, s.created_ms, "
+    "m.series IS NOT NULL, m.spec, m.period, m.alpha, m.beta, m.gamma, m.phi, m.sigma2, m.loglik, m.aicc, "
+    "m.fitted_ms, m.reason, st.series IS NOT NULL, st.step, st.time_ms, st.encoded "
+    "FROM series s LEFT JOIN model m ON m.series = s.id LEFT JOIN state st ON st.series = s.id ";
+
+StoredSeries ReadSeriesRow(const Statement& stmt, bool with_state_bytes) {
+  StoredSeries out;
+  out.series = SeriesRecord{stmt.Text(1), stmt.Text(2), stmt.Int(3)};
+  if (stmt.Int(4) != 0) {
+    ModelRecord m;
+    m.series = out.series.name;
+    m.spec = stmt.Text(5);
+    m.period = static_cast<int32_t>(stmt.Int(6));
+    m.alpha = RealOrNaN(stmt, 7), m.beta = RealOrNaN(stmt, 8), m.gamma = RealOrNaN(stmt, 9);
+    m.phi = RealOrNaN(stmt, 10), m.sigma2 = RealOrNaN(stmt, 11), m.loglik = RealOrNaN(stmt, 12);
+    m.aicc = RealOrNaN(stmt, 13);
+    m.fitted_ms = stmt.Int(14);
+    m.reason = stmt.Text(15);
+    out.model = std::move(m);
+  }
+  if (stmt.Int(16) != 0) {
+    out.state = StateRecord{out.series.name, stmt.Int(17), stmt.Int(18), with_state_bytes ? stmt.Blob(19) : ""};
+  }
+  return out;
+}
+
+// Steps `stmt` to the end, calling `row(stmt)` (returning Status) for each row.
+template <typename Fn>
+Status ForEachRow(Statement& stmt, Fn row) {
+  for (;;) {
+    Result<bool> more = stmt.Step();
+    if (!more.ok()) return more.status();
+    if (!*more) return Status::Ok();
+    PLIMSOLL_RETURN_IF_ERROR(row(stmt));
+  }
+}
+
+template <typename T>
+T Clamp(T value, T lo, T hi) {
+  return std::min(std::max(value, lo), hi);
+}
+
+}  // namespace
+
+std::string_view SynchronousName(Synchronous level) {
+  switch (level) {
+    case Synchronous::kOff: return "off";
+    case Synchronous::kNormal: return "normal";
+    case Synchronous::kFull: return "full";
+  }
+  return "normal";
+}
+
+Result<Synchronous> ParseSynchronous(std::string_view text) {
+  std::string lower(text);
+  std::transform(lower.begin(), lower.end(), lower.begin(), [](unsigned char c) { return std::tolower(c); });
+  for (Synchronous level : {Synchronous::kOff, Synchronous::kNormal, Synchronous::kFull}) {
+    if (lower == SynchronousName(level)) return level;
+  }
+  return Status::InvalidArgument("synchronous level '" + std::string(text) + "' is not one of off, normal, full");
+}
+
+class Store::Impl {
+ public:
+  Impl(StoreOptions options, std::unique_ptr<SqliteDb> db) : options_(std::move(options)), db_(std::move(db)) {}
+
+  Status Load();
+  Status Commit(const CommitBatch& batch);
+  Status CompactHistory(int64_t max_log_rows);
+  Status ForEachSeries(const std::function<Status(const StoredSeries&)>& visit);
+  Result<StoredSeries> GetSeries(std::string_view name);
+  Result<std::vector<StoredSeries>> ListSeries(size_t limit, std::string_view after_name);
+  Result<std::vector<FlagRecord>> RecentFlags(std::string_view series, size_t limit);
+  Result<std::vector<AlertRecord>> RecentAlerts(std::string_view series, size_t limit);
+  Result<std::vector<EventRecord>> RecentEvents(std::string_view series, size_t limit);
+  Result<std::vector<StoredDeadLetter>> RecentDeadLetters(size_t limit);
+  Result<HistorySlice> HistoryTail(std::string_view series, size_t n);
+  std::optional<int64_t> StoredPosition(std::string_view stream, int32_t partition) const;
+  std::vector<PositionRecord> Positions() const;
+
+  StoreOptions options_;
+  std::unique_ptr<SqliteDb> db_;
+  StoreCounters counters_;
+  int64_t fail_after_rows_ = -1;  // TEST_ hook; -1 when disarmed
+  Status fail_status_;
+
+ private:
+  // Runs `body` inside BEGIN IMMEDIATE ... COMMIT, rolling back on any error and retrying the
+  // whole transaction when it met SQLITE_BUSY. `undo` restores in-memory caches after a rollback.
+  template <typename Body, typename Undo>
+  Status RunTransaction(std::string_view what, Body body, Undo undo);
+  Status WriteBatch(const CommitBatch& batch, Tally& tally);
+  Status CountRow(Tally& tally);
+  Result<int64_t> Resolve(std::string_view name, std::string_view what) const;
+  Result<int64_t> LookupSeries(std::string_view name);
+  Status AddToChunks(int64_t series, const std::vector<std::pair<int64_t, double>>& points);
+
+  // Series name -> integer key for the writer; rolled back with the transaction that added names.
+  std::unordered_map<std::string, int64_t, StringHash, std::equal_to<>> series_ids_;
+  std::vector<std::string> added_names_;
+  std::map<std::pair<std::string, int32_t>, int64_t, std::less<>> positions_;
+  int64_t log_points_ = 0;  // points in history_log awaiting compaction
+  std::string pack_buffer_;
+};
+
+Status Store::Impl::Load() {
+  Result<Statement> ids = db_->Prepare("SELECT id, name FROM series");
+  if (!ids.ok()) return ids.status();
+  PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*ids, [&](const Statement& row) {
+    series_ids_.emplace(row.Text(1), row.Int(0));
+    return Status::Ok();
+  }));
+  Result<int64_t> pending = db_->QueryInt("SELECT coalesce(sum(count), 0) FROM history_log");
+  if (!pending.ok()) return pending.status();
+  log_points_ = *pending;
+  Result<Statement> positions = db_->Prepare("SELECT stream, partition, next_offset FROM source_positions");
+  if (!positions.ok()) return positions.status();
+  return ForEachRow(*positions, [&](const Statement& row) {
+    positions_[{row.Text(0), static_cast<int32_t>(row.Int(1))}] = row.Int(2);
+    return Status::Ok();
+  });
+}
+
+template <typename Body, typename Undo>
+Status Store::Impl::RunTransaction(std::string_view what, Body body, Undo undo) {
+  for (int attempt = 0;; ++attempt) {
+    Status status = db_->Exec("BEGIN IMMEDIATE");
+    if (status.ok()) status = body();
+    if (status.ok()) status = db_->Exec("COMMIT");
+    if (status.ok()) return status;
+    // SQLite rolls back by itself after some errors (e.g. SQLITE_FULL); roll back the rest.
+    if (!db_->autocommit()) IgnoreError(db_->Exec("ROLLBACK"));  // the first error is the one to report
+    undo();
+    if (status.code() != StatusCode::kBusy || attempt >= options_.busy_retries) {
+      return status.WithContext(std::string(what) + " in '" + db_->path() + "'");
+    }
+    ++counters_.busy_retries;
+    int64_t backoff = std::min<int64_t>(int64_t{options_.backoff_initial_ms} << std::min(attempt, 20),
+                                        options_.backoff_max_ms);
+    spdlog::warn("store: {} met a lock held by another connection; retry {}/{} in {} ms: {}", what, attempt + 1,
+                 options_.busy_retries, backoff, status.ToString());
+    std::this_thread::sleep_for(std::chrono::milliseconds(backoff));
+  }
+}
+
+Status Store::Impl::CountRow(Tally& tally) {
+  ++tally.rows;
+  if (fail_after_rows_ >= 0 && tally.rows >= fail_after_rows_) {
+    fail_after_rows_ = -1;
+    return fail_status_;
+  }
+  return Status::Ok();
+}
+
+Result<int64_t> Store::Impl::Resolve(std::string_view name, std::string_view what) const {
+  auto it = series_ids_.find(name);
+  if (it != series_ids_.end()) return it->second;
+  return Status::InvalidArgument(std::string(what) + " for series '" + std::string(name) +
+                                 "': the series is neither stored nor listed in the batch's series");
+}
+
+Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
+  using B = Statement::Bytes;
+  tally = Tally{};
+  added_names_.clear();
+  if (fail_after_rows_ == 0) PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+
+  if (!batch.series.empty()) {
+    Result<Statement> stmt = db_->Prepare("INSERT INTO series(name, profile, created_ms) VALUES (?1, ?2, ?3)");
+    if (!stmt.ok()) return stmt.status();
+    for (const SeriesRecord& s : batch.series) {
+      if (series_ids_.count(s.name) != 0) continue;
+      stmt->Bind(1, s.name, B::kBorrow).Bind(2, s.profile, B::kBorrow).Bind(3, s.created_ms);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      series_ids_.emplace(s.name, sqlite3_last_insert_rowid(db_->raw()));
+      added_names_.push_back(s.name);
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.models.empty()) {
+    Result<Statement> stmt = db_->Prepare(
+        "INSERT INTO model(series, spec, period, alpha, beta, gamma, phi, sigma2, loglik, aicc, fitted_ms, reason) "
+        "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12) ON CONFLICT(series) DO UPDATE SET "
+        "spec = excluded.spec, period = excluded.period, alpha = excluded.alpha, beta = excluded.beta, "
+        "gamma = excluded.gamma, phi = excluded.phi, sigma2 = excluded.sigma2, loglik = excluded.loglik, "
+        "aicc = excluded.aicc, fitted_ms = excluded.fitted_ms, reason = excluded.reason");
+    if (!stmt.ok()) return stmt.status();
+    for (const ModelRecord& m : batch.models) {
+      Result<int64_t> id = Resolve(m.series, "model");
+      if (!id.ok()) return id.status();
+      stmt->Bind(1, *id).Bind(2, m.spec, B::kBorrow).Bind(3, int64_t{m.period}).Bind(4, m.alpha).Bind(5, m.beta);
+      stmt->Bind(6, m.gamma).Bind(7, m.phi).Bind(8, m.sigma2).Bind(9, m.loglik).Bind(10, m.aicc);
+      stmt->Bind(11, m.fitted_ms).Bind(12, m.reason, B::kBorrow);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.states.empty()) {
+    Result<Statement> stmt = db_->Prepare(
+        "INSERT INTO state(series, step, time_ms, encoded) VALUES (?1, ?2, ?3, ?4) ON CONFLICT(series) DO UPDATE "
+        "SET step = excluded.step, time_ms = excluded.time_ms, encoded = excluded.encoded");
+    if (!stmt.ok()) return stmt.status();
+    for (const StateRecord& st : batch.states) {
+      Result<int64_t> id = Resolve(st.series, "state");
+      if (!id.ok()) return id.status();
+      stmt->Bind(1, *id).Bind(2, st.step).Bind(3, st.time_ms).BindBlob(4, st.encoded, B::kBorrow);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      ++tally.states;
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.history.empty()) {
+    // The whole interval's observations as one packed row: one B-tree insert instead of one per point.
+    pack_buffer_.clear();
+    pack_buffer_.reserve(batch.history.size() * kLogPointBytes);
+    int64_t last_id = -1;
+    std::string_view last_name;
+    for (const HistoryPoint& p : batch.history) {
+      if (last_id < 0 || p.series != last_name) {  // engines often emit runs of one series
+        Result<int64_t> id = Resolve(p.series, "history point");
+        if (!id.ok()) return id.status();
+        last_id = *id;
+        last_name = p.series;
+      }
+      AppendPoint(pack_buffer_, last_id, p.step, p.value);
+    }
+    Result<Statement> stmt = db_->Prepare("INSERT INTO history_log(count, points) VALUES (?1, ?2)");
+    if (!stmt.ok()) return stmt.status();
+    stmt->Bind(1, static_cast<int64_t>(batch.history.size())).BindBlob(2, pack_buffer_, B::kBorrow);
+    PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+    tally.history = batch.history.size();
+    PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+  }
+  if (!batch.flags.empty()) {
+    Result<Statement> stmt = db_->Prepare(
+        "INSERT OR IGNORE INTO flags(series, step, time_ms, value, expected, lower, upper, level, score, form) "
+        "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)");
+    if (!stmt.ok()) return stmt.status();
+    for (const FlagRecord& f : batch.flags) {
+      Result<int64_t> id = Resolve(f.series, "flag");
+      if (!id.ok()) return id.status();
+      stmt->Bind(1, *id).Bind(2, f.step).Bind(3, f.time_ms).Bind(4, f.value).Bind(5, f.expected);
+      stmt->Bind(6, f.lower).Bind(7, f.upper).Bind(8, f.level).Bind(9, f.score).Bind(10, f.form, B::kBorrow);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      ++(db_->changes() == 0 ? tally.flags_duplicate : tally.flags);
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.alerts.empty()) {
+    Result<Statement> stmt = db_->Prepare(
+        "INSERT OR IGNORE INTO alerts(series, step, kind, time_ms, detail) VALUES (?1, ?2, ?3, ?4, ?5)");
+    if (!stmt.ok()) return stmt.status();
+    for (const AlertRecord& a : batch.alerts) {
+      Result<int64_t> id = Resolve(a.series, "alert");
+      if (!id.ok()) return id.status();
+      stmt->Bind(1, *id).Bind(2, a.step).Bind(3, AlertKindText(a.kind)).Bind(4, a.time_ms);
+      stmt->Bind(5, a.detail, B::kBorrow);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      ++(db_->changes() == 0 ? tally.alerts_duplicate : tally.alerts);
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.dead_letters.empty()) {
+    Result<Statement> stmt = db_->Prepare(
+        "INSERT INTO dead_letters(received_ms, stream, partition, source_offset, raw, raw_size, reason, status_code) "
+        "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)");
+    if (!stmt.ok()) return stmt.status();
+    for (const DeadLetterRecord& d : batch.dead_letters) {
+      std::string_view raw(d.raw);
+      raw = raw.substr(0, static_cast<size_t>(options_.dead_letter_max_bytes));
+      stmt->Bind(1, d.received_ms).Bind(2, d.stream, B::kBorrow).Bind(3, int64_t{d.partition}).Bind(4, d.offset);
+      stmt->BindBlob(5, raw, B::kBorrow).Bind(6, static_cast<int64_t>(d.raw.size()));
+      stmt->Bind(7, d.reason, B::kBorrow).Bind(8, int64_t{d.status_code});
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      ++tally.dead;
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.events.empty()) {
+    Result<Statement> stmt =
+        db_->Prepare("INSERT INTO events(time_ms, series, kind, detail) VALUES (?1, ?2, ?3, ?4)");
+    if (!stmt.ok()) return stmt.status();
+    for (const EventRecord& e : batch.events) {
+      stmt->Bind(1, e.time_ms);
+      if (e.series.empty()) {
+        stmt->BindNull(2);
+      } else {
+        Result<int64_t> id = Resolve(e.series, "event");
+        if (!id.ok()) return id.status();
+        stmt->Bind(2, *id);
+      }
+      stmt->Bind(3, e.kind, B::kBorrow).Bind(4, e.detail, B::kBorrow);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  if (!batch.positions.empty()) {
+    Result<Statement> stmt = db_->Prepare(
+        "INSERT INTO source_positions(stream, partition, next_offset) VALUES (?1, ?2, ?3) "
+        "ON CONFLICT(stream, partition) DO UPDATE SET next_offset = excluded.next_offset");
+    if (!stmt.ok()) return stmt.status();
+    for (const PositionRecord& p : batch.positions) {
+      stmt->Bind(1, p.stream, B::kBorrow).Bind(2, int64_t{p.partition}).Bind(3, p.next_offset);
+      PLIMSOLL_RETURN_IF_ERROR(stmt->Run());
+      PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
+    }
+  }
+  return Status::Ok();
+}
+
+Status Store::Impl::Commit(const CommitBatch& batch) {
+  if (batch.empty()) return Status::Ok();
+  const int64_t start = options_.clock->MonotonicNanos();
+  Tally tally;
+  Status status = RunTransaction(
+      "commit", [&] { return WriteBatch(batch, tally); },
+      [&] {
+        for (const std::string& name : added_names_) series_ids_.erase(name);
+        added_names_.clear();
+      });
+  if (!status.ok()) {
+    ++counters_.commit_failures;
+    counters_.last_error = status.code();
+    spdlog::warn("store: commit of {} records failed; the caller keeps the batch: {}", batch.size(),
+                 status.ToString());
+    return status;
+  }
+  for (const PositionRecord& p : batch.positions) positions_[{p.stream, p.partition}] = p.next_offset;
+  log_points_ += static_cast<int64_t>(tally.history);
+  const int64_t micros = (options_.clock->MonotonicNanos() - start) / 1000;
+  ++counters_.commits;
+  counters_.rows_written += static_cast<uint64_t>(tally.rows) - tally.flags_duplicate - tally.alerts_duplicate;
+  counters_.states_written += tally.states;
+  counters_.history_points += tally.history;
+  counters_.flags_written += tally.flags;
+  counters_.flags_duplicate += tally.flags_duplicate;
+  counters_.alerts_written += tally.alerts;
+  counters_.alerts_duplicate += tally.alerts_duplicate;
+  counters_.dead_letters += tally.dead;
+  counters_.last_commit_micros = micros;
+  counters_.max_commit_micros = std::max(counters_.max_commit_micros, micros);
+  if (log_points_ >= options_.history_compact_points) {
+    // The batch is already durable; a failed compaction keeps the log and is retried next time.
+    Status compacted = CompactHistory(INT64_MAX);
+    if (!compacted.ok()) spdlog::warn("store: history compaction failed: {}", compacted.ToString());
+  }
+  return Status::Ok();
+}
+
+Status Store::Impl::AddToChunks(int64_t series, const std::vector<std::pair<int64_t, double>>& points) {
+  const auto cap = static_cast<int64_t>(options_.history_chunk_points);
+  struct Chunk {
+    bool valid = false;
+    int64_t first = 0;
+    std::vector<double> values;
+    std::optional<int64_t> next_first;  // start of the following chunk, which this one must not reach
+    bool dirty = false;
+    bool Fits(int64_t step, int64_t capacity) const {
+      if (!valid || step < first) return false;
+      if (step < first + static_cast<int64_t>(values.size())) return true;
+      return step < first + capacity && (!next_first || step < *next_first);
+    }
+  } chunk;
+  Result<Statement> find = db_->Prepare(
+      "SELECT first_step, points FROM history WHERE series = ?1 AND first_step <= ?2 "
+      "ORDER BY first_step DESC LIMIT 1");
+  if (!find.ok()) return find.status();
+  Result<Statement> next = db_->Prepare("SELECT min(first_step) FROM history WHERE series = ?1 AND first_step > ?2");
+  if (!next.ok()) return next.status();
+  Result<Statement> write = db_->Prepare(
+      "INSERT INTO history(series, first_step, count, points) VALUES (?1, ?2, ?3, ?4) "
+      "ON CONFLICT(series, first_step) DO UPDATE SET count = excluded.count, points = excluded.points");
+  if (!write.ok()) return write.status();
+
+  auto flush = [&]() -> Status {
+    if (!chunk.dirty) return Status::Ok();
+    write->Bind(1, series).Bind(2, chunk.first).Bind(3, static_cast<int64_t>(chunk.values.size()));
+    write->BindBlob(4, DoublesView(chunk.values), Statement::Bytes::kBorrow);
+    chunk.dirty = false;
+    return write->Run();
+  };
+  for (const auto& [step, value] : points) {
+    if (!chunk.Fits(step, cap)) {
+      PLIMSOLL_RETURN_IF_ERROR(flush());
+      chunk = Chunk{};
+      chunk.valid = true;
+      find->Bind(1, series).Bind(2, step);
+      Result<bool> found = find->Step();
+      if (!found.ok()) return found.status();
+      if (*found) {
+        chunk.first = find->Int(0);
+        chunk.values = ReadDoubles(find->BlobView(1));
+      }
+      find->Reset();
+      next->Bind(1, series).Bind(2, *found ? chunk.first : step);
+      Result<bool> has_next = next->Step();
+      if (!has_next.ok()) return has_next.status();
+      if (!next->IsNull(0)) chunk.next_first = next->Int(0);
+      next->Reset();
+      // The found chunk is the last one starting at or before `step`, so next_first > step.
+      // When that chunk is full (or there is none), a new chunk starts at this step.
+      if (!*found || !chunk.Fits(step, cap)) {
+        chunk.first = step;
+        chunk.values.clear();
+      }
+    }
+    const int64_t index = step - chunk.first;
+    if (index >= static_cast<int64_t>(chunk.values.size())) {
+      chunk.values.resize(static_cast<size_t>(index + 1), kNoValue);  // gap steps stay NaN
+    }
+    chunk.values[static_cast<size_t>(index)] = value;
+    chunk.dirty = true;
+  }
+  return flush();
+}
+
+Status Store::Impl::CompactHistory(int64_t max_log_rows) {
+  if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
+  int64_t moved = 0;
+  Status status = RunTransaction(
+      "history compaction",
+      [&]() -> Status {
+        moved = 0;
+        std::map<int64_t, std::vector<std::pair<int64_t, double>>> by_series;
+        int64_t max_seq = -1;
+        {
+          Result<Statement> rows = db_->Prepare("SELECT seq, points FROM history_log ORDER BY seq LIMIT ?1");
+          if (!rows.ok()) return rows.status();
+          rows->Bind(1, max_log_rows);
+          PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
+            max_seq = row.Int(0);
+            std::string_view blob = row.BlobView(1);
+            for (size_t at = 0; at + kLogPointBytes <= blob.size(); at += kLogPointBytes) {
+              LogPoint p = ReadPoint(blob.data() + at);
+              by_series[p.series].emplace_back(p.step, p.value);
+              ++moved;
+            }
+            return Status::Ok();
+          }));
+        }
+        if (max_seq < 0) return Status::Ok();
+        for (const auto& [series, points] : by_series) PLIMSOLL_RETURN_IF_ERROR(AddToChunks(series, points));
+        Result<Statement> erase = db_->Prepare("DELETE FROM history_log WHERE seq <= ?1");
+        if (!erase.ok()) return erase.status();
+        erase->Bind(1, max_seq);
+        return erase->Run();
+      },
+      [] {});
+  if (!status.ok()) {
+    ++counters_.compaction_failures;
+    counters_.last_error = status.code();
+    return status;
+  }
+  log_points_ = std::max<int64_t>(0, log_points_ - moved);
+  ++counters_.compactions;
+  return Status::Ok();
+}
+
+Result<int64_t> Store::Impl::LookupSeries(std::string_view name) {
+  // Readers may be separate connections whose in-memory map is stale, so ask the file.
+  Result<Statement> stmt = db_->Prepare("SELECT id FROM series WHERE name = ?1");
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, name);
+  Result<bool> row = stmt->Step();
+  if (!row.ok()) return row.status();
+  if (!*row) return Status::NotFound("series '" + std::string(name) + "' is not in the store");
+  return stmt->Int(0);
+}
+
+Status Store::Impl::ForEachSeries(const std::function<Status(const StoredSeries&)>& visit) {
+  Result<Statement> stmt = db_->Prepare(std::string(kSeriesSelect) + "ORDER BY s.id");
+  if (!stmt.ok()) return stmt.status();
+  return ForEachRow(*stmt, [&](const Statement& row) { return visit(ReadSeriesRow(row, true)); });
+}
+
+Result<StoredSeries> Store::Impl::GetSeries(std::string_view name) {
+  Result<Statement> stmt = db_->Prepare(std::string(kSeriesSelect) + "WHERE s.name = ?1");
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, name);
+  Result<bool> row = stmt->Step();
+  if (!row.ok()) return row.status();
+  if (!*row) return Status::NotFound("series '" + std::string(name) + "' is not in the store");
+  return ReadSeriesRow(*stmt, true);
+}
+
+Result<std::vector<StoredSeries>> Store::Impl::ListSeries(size_t limit, std::string_view after_name) {
+  Result<Statement> stmt = db_->Prepare(std::string(kSeriesSelect) + "WHERE s.name > ?1 ORDER BY s.name LIMIT ?2");
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, after_name).Bind(2, static_cast<int64_t>(std::min<size_t>(limit, INT64_MAX)));
+  std::vector<StoredSeries> out;
+  PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*stmt, [&](const Statement& row) {
+    out.push_back(ReadSeriesRow(row, false));
+    return Status::Ok();
+  }));
+  return out;
+}
+
+Result<std::vector<FlagRecord>> Store::Impl::RecentFlags(std::string_view series, size_t limit) {
+  constexpr const char* kSelect =
+      "SELECT s.name, f.step, f.time_ms, f.value, f.expected, f.lower, f.upper, f.level, f.score, f.form "
+      "FROM flags f JOIN series s ON s.id = f.series ";
+  int64_t id = -1;
+  if (!series.empty()) {
+    Result<int64_t> found = LookupSeries(series);
+    if (!found.ok()) return found.status();
+    id = *found;
+  }
+  Result<Statement> stmt = db_->Prepare(std::string(kSelect) + (series.empty()
+                                                                    ? "ORDER BY f.time_ms DESC, f.series LIMIT ?1"
+                                                                    : "WHERE f.series = ?2 ORDER BY f.step DESC LIMIT ?1"));
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, static_cast<int64_t>(std::min<size_t>(limit, INT64_MAX)));
+  if (!series.empty()) stmt->Bind(2, id);
+  std::vector<FlagRecord> out;
+  PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*stmt, [&](const Statement& row) {
+    out.push_back(FlagRecord{row.Text(0), row.Int(1), row.Int(2), RealOrNaN(row, 3), RealOrNaN(row, 4),
+                             RealOrNaN(row, 5), RealOrNaN(row, 6), RealOrNaN(row, 7), RealOrNaN(row, 8),
+                             row.Text(9)});
+    return Status::Ok();
+  }));
+  return out;
+}
+
+Result<std::vector<AlertRecord>> Store::Impl::RecentAlerts(std::string_view series, size_t limit) {
+  constexpr const char* kSelect =
+      "SELECT s.name, a.step, a.time_ms, a.kind, a.detail FROM alerts a JOIN series s ON s.id = a.series ";
+  int64_t id = -1;
+  if (!series.empty()) {
+    Result<int64_t> found = LookupSeries(series);
+    if (!found.ok()) return found.status();
+    id = *found;
+  }
+  Result<Statement> stmt = db_->Prepare(
+      std::string(kSelect) + (series.empty() ? "ORDER BY a.time_ms DESC, a.series LIMIT ?1"
+                                             : "WHERE a.series = ?2 ORDER BY a.step DESC, a.kind LIMIT ?1"));
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, static_cast<int64_t>(std::min<size_t>(limit, INT64_MAX)));
+  if (!series.empty()) stmt->Bind(2, id);
+  std::vector<AlertRecord> out;
+  PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*stmt, [&](const Statement& row) {
+    AlertKind kind = row.Text(3) == "raised" ? AlertKind::kRaised : AlertKind::kCleared;
+    out.push_back(AlertRecord{row.Text(0), row.Int(1), row.Int(2), kind, row.Text(4)});
+    return Status::Ok();
+  }));
+  return out;
+}
+
+Result<std::vector<EventRecord>> Store::Impl::RecentEvents(std::string_view series, size_t limit) {
+  constexpr const char* kSelect =
+      "SELECT e.time_ms, coalesce(s.name, ''), e.kind, e.detail FROM events e LEFT JOIN series s ON s.id = e.series ";
+  int64_t id = -1;
+  if (!series.empty()) {
+    Result<int64_t> found = LookupSeries(series);
+    if (!found.ok()) return found.status();
+    id = *found;
+  }
+  Result<Statement> stmt = db_->Prepare(std::string(kSelect) + (series.empty() ? "ORDER BY e.id DESC LIMIT ?1"
+                                                                               : "WHERE e.series = ?2 ORDER BY e.id DESC LIMIT ?1"));
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, static_cast<int64_t>(std::min<size_t>(limit, INT64_MAX)));
+  if (!series.empty()) stmt->Bind(2, id);
+  std::vector<EventRecord> out;
+  PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*stmt, [&](const Statement& row) {
+    out.push_back(EventRecord{row.Int(0), row.Text(1), row.Text(2), row.Text(3)});
+    return Status::Ok();
+  }));
+  return out;
+}
+
+Result<std::vector<StoredDeadLetter>> Store::Impl::RecentDeadLetters(size_t limit) {
+  Result<Statement> stmt = db_->Prepare(
+      "SELECT id, raw_size, received_ms, stream, partition, source_offset, raw, reason, status_code "
+      "FROM dead_letters ORDER BY id DESC LIMIT ?1");
+  if (!stmt.ok()) return stmt.status();
+  stmt->Bind(1, static_cast<int64_t>(std::min<size_t>(limit, INT64_MAX)));
+  std::vector<StoredDeadLetter> out;
+  PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*stmt, [&](const Statement& row) {
+    DeadLetterRecord d{row.Int(2), row.Text(3), static_cast<int32_t>(row.Int(4)), row.Int(5),
+                       row.Blob(6), row.Text(7), static_cast<int32_t>(row.Int(8))};
+    out.push_back(StoredDeadLetter{row.Int(0), row.Int(1), std::move(d)});
+    return Status::Ok();
+  }));
+  return out;
+}
+
+Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n) {
+  Result<int64_t> id = LookupSeries(series);
+  if (!id.ok()) return id.status();
+  HistorySlice slice;
+  if (n == 0) return slice;
+  // Points not yet compacted, in commit order (a later point for the same step wins).
+  std::vector<std::pair<int64_t, double>> logged;
+  {
+    Result<Statement> rows = db_->Prepare("SELECT points FROM history_log ORDER BY seq");
+    if (!rows.ok()) return rows.status();
+    PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
+      std::string_view blob = row.BlobView(0);
+      for (size_t at = 0; at + kLogPointBytes <= blob.size(); at += kLogPointBytes) {
+        LogPoint p = ReadPoint(blob.data() + at);
+        if (p.series == *id) logged.emplace_back(p.step, p.value);
+      }
+      return Status::Ok();
+    }));
+  }
+  Result<Statement> chunks = db_->Prepare(
+      "SELECT first_step, points FROM history WHERE series = ?1 ORDER BY first_step DESC");
+  if (!chunks.ok()) return chunks.status();
+  chunks->Bind(1, *id);
+  // Newest chunks first, until the window is covered. The window's end is known only after the
+  // newest chunk is read, so collect first and place afterwards.
+  std::vector<std::pair<int64_t, std::vector<double>>> taken;
+  int64_t last = INT64_MIN;
+  for (const auto& point : logged) last = std::max(last, point.first);
+  int64_t earliest = INT64_MAX;
+  for (const auto& point : logged) earliest = std::min(earliest, point.first);
+  for (;;) {
+    Result<bool> row = chunks->Step();
+    if (!row.ok()) return row.status();
+    if (!*row) break;
+    const int64_t first = chunks->Int(0);
+    std::vector<double> values = ReadDoubles(chunks->BlobView(1));
+    if (values.empty()) continue;
+    if (taken.empty()) last = std::max(last, first + static_cast<int64_t>(values.size()) - 1);
+    earliest = std::min(earliest, first);
+    taken.emplace_back(first, std::move(values));
+    if (first <= last - static_cast<int64_t>(n) + 1) break;
+  }
+  chunks->Reset();
+  if (last == INT64_MIN) return slice;  // no history at all
+  const int64_t start = std::max(last - static_cast<int64_t>(n) + 1, earliest);
+  slice.first_step = start;
+  slice.values.assign(static_cast<size_t>(last - start + 1), kNoValue);
+  auto place = [&](int64_t step, double value) {
+    if (step >= start && step <= last) slice.values[static_cast<size_t>(step - start)] = value;
+  };
+  for (auto it = taken.rbegin(); it != taken.rend(); ++it) {
+    for (size_t i = 0; i < it->second.size(); ++i) place(it->first + static_cast<int64_t>(i), it->second[i]);
+  }
+  for (const auto& [step, value] : logged) place(step, value);
+  return slice;
+}
+
+std::optional<int64_t> Store::Impl::StoredPosition(std::string_view stream, int32_t partition) const {
+  auto it = positions_.find(std::pair<std::string, int32_t>(stream, partition));
+  if (it == positions_.end()) return std::nullopt;
+  return it->second;
+}
+
+std::vector<PositionRecord> Store::Impl::Positions() const {
+  std::vector<PositionRecord> out;
+  for (const auto& [key, offset] : positions_) out.push_back(PositionRecord{key.first, key.second, offset});
+  return out;
+}
+
+Result<std::unique_ptr<Store>> Store::Open(StoreOptions options) {
+  if (options.path.empty()) return Status::InvalidArgument("store path is empty");
+  if (options.clock == nullptr) return Status::InvalidArgument("store clock is null");
+  options.busy_timeout_ms = Clamp(options.busy_timeout_ms, 0, 60'000);
+  options.busy_retries = Clamp(options.busy_retries, 0, 100);
+  options.backoff_initial_ms = Clamp(options.backoff_initial_ms, 0, 60'000);
+  options.backoff_max_ms = Clamp(options.backoff_max_ms, options.backoff_initial_ms, 600'000);
+  options.dead_letter_max_bytes = Clamp(options.dead_letter_max_bytes, 16, 1 << 20);
+  options.history_chunk_points = Clamp(options.history_chunk_points, 16, 65'536);
+  options.history_compact_points = std::max<int64_t>(options.history_compact_points, 1000);
+  options.cache_kib = Clamp(options.cache_kib, 64, 16 * 1024 * 1024);
+  options.wal_autocheckpoint_pages = Clamp(options.wal_autocheckpoint_pages, 0, 1 << 24);
+
+  const int flags = options.read_only ? SQLITE_OPEN_READONLY : (SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE);
+  Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(options.path, flags);
+  if (!db.ok()) return db.status();
+  SqliteDb& conn = **db;
+  if (!options.read_only && sqlite3_db_readonly(conn.raw(), "main") == 1) {
+    return Status::Unavailable("store file '" + options.path +
+                               "' cannot be written (permissions or a read-only file system); "
+                               "open it read-only to inspect it");
+  }
+  sqlite3_busy_timeout(conn.raw(), options.busy_timeout_ms);
+  std::string pragmas = "PRAGMA cache_size = -" + std::to_string(options.cache_kib) + "; PRAGMA temp_store = MEMORY;";
+  if (!options.read_only) {
+    pragmas += " PRAGMA journal_mode = WAL; PRAGMA synchronous = " + std::string(SynchronousName(options.synchronous)) +
+               "; PRAGMA wal_autocheckpoint = " + std::to_string(options.wal_autocheckpoint_pages) + ";";
+  }
+  Status status = conn.Exec(pragmas);
+  if (!status.ok()) return status.WithContext("configuring store '" + options.path + "'");
+  if (!options.read_only) {
+    Result<Statement> mode = conn.Prepare("PRAGMA journal_mode");
+    if (!mode.ok()) return mode.status();
+    Result<bool> row = mode->Step();
+    if (!row.ok()) return row.status();
+    if (!*row || mode->Text(0) != "wal") {
+      return Status::Unavailable("store '" + options.path + "' could not switch to WAL mode (journal_mode " +
+                                 (*row ? mode->Text(0) : std::string("unknown")) + ")");
+    }
+  }
+  status = options.read_only ? CheckSchema(conn) : MigrateSchema(conn, LatestSchemaVersion());
+  if (!status.ok()) return status;
+  auto impl = std::make_unique<Impl>(std::move(options), std::move(*db));
+  PLIMSOLL_RETURN_IF_ERROR(impl->Load());
+  return std::unique_ptr<Store>(new Store(std::move(impl)));
+}
+
+Store::Store(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
+Store::~Store() = default;
+
+Status Store::Commit(const CommitBatch& batch) { return impl_->Commit(batch); }
+Status Store::CompactHistory(int64_t max_log_rows) { return impl_->CompactHistory(max_log_rows); }
+Status Store::ForEachSeries(const std::function<Status(const StoredSeries&)>& visit) {
+  return impl_->ForEachSeries(visit);
+}
+Result<StoredSeries> Store::GetSeries(std::string_view name) { return impl_->GetSeries(name); }
+Result<std::vector<StoredSeries>> Store::ListSeries(size_t limit, std::string_view after_name) {
+  return impl_->ListSeries(limit, after_name);
+}
+Result<std::vector<FlagRecord>> Store::RecentFlags(std::string_view series, size_t limit) {
+  return impl_->RecentFlags(series, limit);
+}
+Result<std::vector<AlertRecord>> Store::RecentAlerts(std::string_view series, size_t limit) {
+  return impl_->RecentAlerts(series, limit);
+}
+Result<std::vector<EventRecord>> Store::RecentEvents(std::string_view series, size_t limit) {
+  return impl_->RecentEvents(series, limit);
+}
+Result<std::vector<StoredDeadLetter>> Store::RecentDeadLetters(size_t limit) {
+  return impl_->RecentDeadLetters(limit);
+}
+Result<HistorySlice> Store::HistoryTail(std::string_view series, size_t n) { return impl_->HistoryTail(series, n); }
+std::optional<int64_t> Store::StoredPosition(std::string_view stream, int32_t partition) const {
+  return impl_->StoredPosition(stream, partition);
+}
+std::vector<PositionRecord> Store::Positions() const { return impl_->Positions(); }
+const StoreCounters& Store::counters() const { return impl_->counters_; }
+const StoreOptions& Store::options() const { return impl_->options_; }
+
+void Store::TEST_FailNextCommitAfterRows(int64_t rows, Status status) {
+  impl_->fail_after_rows_ = rows;
+  impl_->fail_status_ = std::move(status);
+}
+
+Status Store::TEST_LimitPages(int64_t pages) {
+  // SQLite never shrinks the cap below the current size; a huge value lifts it.
+  return impl_->db_->Exec("PRAGMA max_page_count = " + std::to_string(pages > 0 ? pages : 0xFFFFFFFE));
+}
+
+}  // namespace plimsoll::store

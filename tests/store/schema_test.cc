@@ -1,0 +1,134 @@
+#include "store/schema.h"
+
+#include <catch2/catch.hpp>
+#include <fstream>
+
+#include "store/store_test_util.h"
+
+namespace plimsoll::store {
+namespace {
+
+using testing::TempDir;
+
+std::unique_ptr<SqliteDb> RawOpen(const std::string& path) {
+  Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(path, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE);
+  REQUIRE(db.ok());
+  return std::move(db.value());
+}
+
+int64_t Query(SqliteDb& db, const std::string& sql) {
+  Result<int64_t> v = db.QueryInt(sql);
+  INFO(sql << ": " << v.status().ToString());
+  REQUIRE(v.ok());
+  return *v;
+}
+
+TEST_CASE("migration versions are consecutive from one", "[store]") {
+  int expected = 1;
+  for (const Migration& m : Migrations()) CHECK(m.version == expected++);
+  CHECK(LatestSchemaVersion() == expected - 1);
+}
+
+TEST_CASE("a new store gets every table at the latest schema version", "[store]") {
+  TempDir dir;
+  auto store = testing::OpenOrDie(testing::TestOptions(dir));
+  store.reset();
+  auto db = RawOpen(dir.File("store.db"));
+  CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
+  CHECK(Query(*db, "PRAGMA application_id") == kApplicationId);
+  for (const char* table : {"series", "model", "state", "history", "history_log", "flags", "alerts", "dead_letters",
+                            "source_positions", "events"}) {
+    INFO(table);
+    CHECK(Query(*db, std::string("SELECT count(*) FROM sqlite_schema WHERE type = 'table' AND name = '") + table +
+                         "'") == 1);
+  }
+  Result<Statement> mode = db->Prepare("PRAGMA journal_mode");
+  REQUIRE(mode.ok());
+  REQUIRE(*mode->Step());
+  CHECK(mode->Text(0) == "wal");
+}
+
+TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(MigrateSchema(*db, 1).ok());
+    CHECK(Query(*db, "PRAGMA user_version") == 1);
+    CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'history'") == 0);
+    REQUIRE(db->Exec("INSERT INTO series(id, name, profile, created_ms) VALUES (7, 'queue-a', 'calls', 1000);"
+                     "INSERT INTO state(series, step, time_ms, encoded) VALUES (7, 42, 5000, x'00ff10');"
+                     "INSERT INTO source_positions VALUES ('file:/x.csv', 0, 1234);")
+                .ok());
+  }
+  auto store = testing::OpenOrDie(testing::TestOptions(dir));
+  Result<StoredSeries> series = store->GetSeries("queue-a");
+  REQUIRE(series.ok());
+  REQUIRE(series->state.has_value());
+  CHECK(series->state->step == 42);
+  CHECK(series->state->encoded == std::string("\x00\xff\x10", 3));
+  CHECK(store->StoredPosition("file:/x.csv", 0) == std::optional<int64_t>(1234));
+  // The history added by version 2 works on the migrated file.
+  CommitBatch batch;
+  batch.history.push_back({"queue-a", 43, 1.5});
+  REQUIRE(store->Commit(batch).ok());
+  Result<HistorySlice> tail = store->HistoryTail("queue-a", 10);
+  REQUIRE(tail.ok());
+  CHECK(tail->first_step == 43);
+  CHECK(tail->values == std::vector<double>{1.5});
+  store.reset();
+  auto db = RawOpen(dir.File("store.db"));
+  CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
+}
+
+TEST_CASE("a failing migration step leaves the previous version intact", "[store]") {
+  TempDir dir;
+  auto db = RawOpen(dir.File("store.db"));
+  REQUIRE(MigrateSchema(*db, 1).ok());
+  // Occupy a name migration 2 creates, so its CREATE TABLE fails mid-step.
+  REQUIRE(db->Exec("CREATE TABLE history(x)").ok());
+  Status status = MigrateSchema(*db, LatestSchemaVersion());
+  REQUIRE_FALSE(status.ok());
+  CHECK(status.message().find("schema version 2") != std::string::npos);
+  CHECK(Query(*db, "PRAGMA user_version") == 1);
+  CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'history_log'") == 0);
+  CHECK(db->autocommit());
+}
+
+TEST_CASE("a store newer than this build is refused", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(MigrateSchema(*db, LatestSchemaVersion()).ok());
+    REQUIRE(db->Exec("PRAGMA user_version = " + std::to_string(LatestSchemaVersion() + 1)).ok());
+  }
+  Result<std::unique_ptr<Store>> store = Store::Open(testing::TestOptions(dir));
+  REQUIRE_FALSE(store.ok());
+  CHECK(store.status().code() == StatusCode::kUnavailable);
+  CHECK(store.status().message().find("newer") != std::string::npos);
+}
+
+TEST_CASE("another application's sqlite file is refused, not migrated", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(db->Exec("CREATE TABLE customers(id INTEGER)").ok());
+  }
+  Result<std::unique_ptr<Store>> store = Store::Open(testing::TestOptions(dir));
+  REQUIRE_FALSE(store.ok());
+  CHECK(store.status().code() == StatusCode::kCorruption);
+  CHECK(store.status().message().find("not a plimsoll store") != std::string::npos);
+  auto db = RawOpen(dir.File("store.db"));
+  CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'series'") == 0);
+}
+
+TEST_CASE("a file that is not sqlite at all is reported as corruption", "[store]") {
+  TempDir dir;
+  std::ofstream(dir.File("store.db")) << std::string(8192, 'x');
+  Result<std::unique_ptr<Store>> store = Store::Open(testing::TestOptions(dir));
+  REQUIRE_FALSE(store.ok());
+  INFO(store.status().ToString());
+  CHECK(store.status().code() == StatusCode::kCorruption);
+}
+
+}  // namespace
+}  // namespace plimsoll::store

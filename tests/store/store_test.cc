@@ -1,0 +1,456 @@
+#include "plimsoll/store/store.h"
+
+#include <catch2/catch.hpp>
+#include <cmath>
+#include <thread>
+
+#include "store/sqlite.h"
+#include "store/store_test_util.h"
+
+namespace plimsoll::store {
+namespace {
+
+using testing::OpenOrDie;
+using testing::SeriesName;
+using testing::StateBytes;
+using testing::TempDir;
+using testing::TestOptions;
+
+// A batch touching every table: `n` series (created when `create`), each with a model, a state
+// for `step`, a history point, a flag and an alert; one dead letter, one event, one position.
+CommitBatch FullBatch(int n, int64_t step, bool create, int64_t next_offset) {
+  CommitBatch b;
+  for (int i = 0; i < n; ++i) {
+    std::string name = SeriesName(i);
+    if (create) b.series.push_back({name, "calls", 1000 + i});
+    ModelRecord m;
+    m.series = name;
+    m.spec = "ETS(M,Ad,M)";
+    m.period = 24;
+    m.alpha = 0.3, m.beta = 0.01, m.gamma = 0.1, m.phi = 0.98, m.sigma2 = 0.002, m.loglik = -512.25;
+    m.aicc = 1050.5, m.fitted_ms = 7000, m.reason = "warmup";
+    b.models.push_back(m);
+    b.states.push_back({name, step, step * 900'000, StateBytes(i, step)});
+    b.history.push_back({name, step, 100.0 + i + 0.25 * static_cast<double>(step)});
+    b.flags.push_back({name, step, step * 900'000, 250.0, 100.0, 80.0, 120.0, 0.99, 4.5, "ETS(M,Ad,M)"});
+    b.alerts.push_back({name, step, step * 900'000, AlertKind::kRaised, R"({"run":3})"});
+  }
+  b.dead_letters.push_back({5000, "file:/in.csv", 0, 77, "s1,not-a-time,3", "line 4: time 'not-a-time' unparseable", 1});
+  b.events.push_back({6000, SeriesName(0), "model_changed", R"j({"to":"ETS(M,Ad,M)"})j"});
+  b.positions.push_back({"file:/in.csv", 0, next_offset});
+  return b;
+}
+
+int64_t Count(const std::string& path, const std::string& table) {
+  Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(path, SQLITE_OPEN_READONLY);
+  REQUIRE(db.ok());
+  Result<int64_t> n = (*db)->QueryInt("SELECT count(*) FROM " + table);
+  INFO(n.status().ToString());
+  REQUIRE(n.ok());
+  return *n;
+}
+
+TEST_CASE("committed rows read back after reopening, state bytes bit-identical", "[store]") {
+  TempDir dir;
+  const StoreOptions options = TestOptions(dir);
+  {
+    auto store = OpenOrDie(options);
+    REQUIRE(store->Commit(FullBatch(50, 10, true, 4096)).ok());
+    CHECK(store->counters().commits == 1);
+    CHECK(store->counters().states_written == 50);
+    CHECK(store->counters().history_points == 50);
+  }
+  auto store = OpenOrDie(options);
+  std::vector<StoredSeries> loaded;
+  REQUIRE(store->ForEachSeries([&](const StoredSeries& s) {
+    loaded.push_back(s);
+    return Status::Ok();
+  }).ok());
+  REQUIRE(loaded.size() == 50);
+  for (int i = 0; i < 50; ++i) {
+    const StoredSeries& s = loaded[static_cast<size_t>(i)];
+    CHECK(s.series.name == SeriesName(i));
+    CHECK(s.series.profile == "calls");
+    CHECK(s.series.created_ms == 1000 + i);
+    REQUIRE(s.state.has_value());
+    CHECK(s.state->step == 10);
+    CHECK(s.state->encoded == StateBytes(i, 10));
+    REQUIRE(s.model.has_value());
+    CHECK(*s.model == FullBatch(50, 10, false, 0).models[static_cast<size_t>(i)]);
+  }
+  CHECK(store->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(4096));
+  CHECK_FALSE(store->StoredPosition("file:/in.csv", 1).has_value());
+  CHECK_FALSE(store->StoredPosition("stdin", 0).has_value());
+
+  Result<std::vector<FlagRecord>> flags = store->RecentFlags(SeriesName(3), 10);
+  REQUIRE(flags.ok());
+  REQUIRE(flags->size() == 1);
+  CHECK(flags->front() == FullBatch(50, 10, false, 0).flags[3]);
+  Result<std::vector<AlertRecord>> alerts = store->RecentAlerts(SeriesName(3), 10);
+  REQUIRE(alerts.ok());
+  REQUIRE(alerts->size() == 1);
+  CHECK(alerts->front() == FullBatch(50, 10, false, 0).alerts[3]);
+  Result<std::vector<StoredDeadLetter>> dead = store->RecentDeadLetters(10);
+  REQUIRE(dead.ok());
+  REQUIRE(dead->size() == 1);
+  CHECK(dead->front().record.reason == "line 4: time 'not-a-time' unparseable");
+  CHECK(dead->front().record.offset == 77);
+  Result<std::vector<EventRecord>> events = store->RecentEvents(SeriesName(0), 10);
+  REQUIRE(events.ok());
+  REQUIRE(events->size() == 1);
+  CHECK(events->front().kind == "model_changed");
+}
+
+TEST_CASE("a model without trend or season stores its missing parameters as null", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch b;
+  b.series.push_back({"plain", "p", 0});
+  ModelRecord m;
+  m.series = "plain", m.spec = "ETS(A,N,N)", m.alpha = 0.5, m.sigma2 = 2.0, m.reason = "warmup";
+  b.models.push_back(m);
+  REQUIRE(store->Commit(b).ok());
+  Result<StoredSeries> s = store->GetSeries("plain");
+  REQUIRE(s.ok());
+  REQUIRE(s->model.has_value());
+  CHECK(s->model->alpha == 0.5);
+  CHECK(std::isnan(s->model->beta));
+  CHECK(std::isnan(s->model->gamma));
+  CHECK(std::isnan(s->model->phi));
+  CHECK(Count(dir.File("store.db"), "model WHERE beta IS NULL AND gamma IS NULL AND phi IS NULL") == 1);
+}
+
+TEST_CASE("later commits overwrite states and positions but keep earlier flags", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  REQUIRE(store->Commit(FullBatch(5, 1, true, 100)).ok());
+  REQUIRE(store->Commit(FullBatch(5, 2, false, 200)).ok());
+  Result<StoredSeries> s = store->GetSeries(SeriesName(4));
+  REQUIRE(s.ok());
+  CHECK(s->state->step == 2);
+  CHECK(s->state->encoded == StateBytes(4, 2));
+  CHECK(store->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(200));
+  Result<std::vector<FlagRecord>> flags = store->RecentFlags(SeriesName(4), 10);
+  REQUIRE(flags.ok());
+  REQUIRE(flags->size() == 2);
+  CHECK(flags->at(0).step == 2);  // newest first
+  CHECK(flags->at(1).step == 1);
+  CHECK(Count(dir.File("store.db"), "state") == 5);
+}
+
+TEST_CASE("re-committing the same flags and alerts after a crash adds no duplicates", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  const CommitBatch batch = FullBatch(20, 7, true, 10);
+  REQUIRE(store->Commit(batch).ok());
+  CHECK(store->counters().flags_written == 20);
+  // Re-delivery: the same outputs again (another flag value even), plus one genuinely new flag.
+  CommitBatch again = FullBatch(20, 7, false, 10);
+  for (FlagRecord& f : again.flags) f.value = -1;
+  again.flags.push_back({SeriesName(0), 8, 8 * 900'000, 1, 2, 3, 4, 0.99, 5, "ETS(A,N,N)"});
+  again.alerts.push_back({SeriesName(0), 7, 7 * 900'000, AlertKind::kCleared, "{}"});
+  REQUIRE(store->Commit(again).ok());
+  CHECK(store->counters().flags_written == 21);
+  CHECK(store->counters().flags_duplicate == 20);
+  CHECK(store->counters().alerts_written == 21);  // (s0, 7, cleared) differs from (s0, 7, raised)
+  CHECK(store->counters().alerts_duplicate == 20);
+  CHECK(Count(dir.File("store.db"), "flags") == 21);
+  CHECK(Count(dir.File("store.db"), "alerts") == 21);
+  Result<std::vector<FlagRecord>> flags = store->RecentFlags(SeriesName(1), 5);
+  REQUIRE(flags.ok());
+  CHECK(flags->front().value == 250.0);  // the first delivery is kept
+}
+
+TEST_CASE("a commit that fails mid-way leaves nothing visible and a retry succeeds", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  REQUIRE(store->Commit(FullBatch(10, 1, true, 100)).ok());
+  const CommitBatch batch = FullBatch(10, 2, false, 200);
+  const size_t rows_before = batch.size();
+  for (int64_t fail_at : {0, 1, 7, 15, 33}) {
+    INFO("fail after " << fail_at << " rows");
+    store->TEST_FailNextCommitAfterRows(fail_at, Status::IoError("injected: disk went away"));
+    Status status = store->Commit(batch);
+    REQUIRE_FALSE(status.ok());
+    CHECK(status.code() == StatusCode::kIoError);
+    CHECK(status.message().find("injected") != std::string::npos);
+    // Nothing of the failed batch is visible, to this connection or another one.
+    Result<StoredSeries> s = store->GetSeries(SeriesName(3));
+    REQUIRE(s.ok());
+    CHECK(s->state->step == 1);
+    CHECK(store->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(100));
+    CHECK(Count(dir.File("store.db"), "flags") == 10);
+    CHECK(Count(dir.File("store.db"), "history_log") == 1);
+    CHECK(Count(dir.File("store.db"), "state WHERE step = 2") == 0);
+    CHECK(Count(dir.File("store.db"), "source_positions WHERE next_offset = 200") == 0);
+  }
+  CHECK(store->counters().commit_failures == 5);
+  CHECK(store->counters().last_error == StatusCode::kIoError);
+  CHECK(batch.size() == rows_before);
+  REQUIRE(store->Commit(batch).ok());
+  CHECK(Count(dir.File("store.db"), "state WHERE step = 2") == 10);
+  CHECK(store->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(200));
+}
+
+TEST_CASE("a failed commit that created series forgets them, so the retry creates them again", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  const CommitBatch batch = FullBatch(3, 1, true, 10);
+  store->TEST_FailNextCommitAfterRows(4, Status::IoError("injected"));
+  REQUIRE_FALSE(store->Commit(batch).ok());
+  CHECK(store->GetSeries(SeriesName(0)).status().code() == StatusCode::kNotFound);
+  // A batch that only references the (rolled back) series must now be refused.
+  CommitBatch state_only;
+  state_only.states.push_back({SeriesName(0), 1, 0, "x"});
+  Status refused = store->Commit(state_only);
+  CHECK(refused.code() == StatusCode::kInvalidArgument);
+  CHECK(refused.message().find("'s0'") != std::string::npos);
+  REQUIRE(store->Commit(batch).ok());
+  CHECK(store->GetSeries(SeriesName(2)).ok());
+}
+
+TEST_CASE("a full disk fails the commit with an io error, keeps it invisible, and a retry succeeds",
+          "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  REQUIRE(store->Commit(FullBatch(10, 1, true, 100)).ok());
+  Result<std::unique_ptr<SqliteDb>> probe = SqliteDb::Open(dir.File("store.db"), SQLITE_OPEN_READONLY);
+  REQUIRE(probe.ok());
+  Result<int64_t> pages = (*probe)->QueryInt("PRAGMA page_count");
+  REQUIRE(pages.ok());
+  probe->reset();
+  // Cap the file at its current size: SQLite returns SQLITE_FULL as it would on a full disk.
+  REQUIRE(store->TEST_LimitPages(*pages).ok());
+  CommitBatch big = FullBatch(2000, 2, false, 200);
+  for (int i = 10; i < 2000; ++i) big.series.push_back({SeriesName(i), "calls", 0});
+  Status status = store->Commit(big);
+  INFO(status.ToString());
+  REQUIRE(status.code() == StatusCode::kIoError);
+  CHECK(status.message().find("full") != std::string::npos);
+  CHECK(Count(dir.File("store.db"), "series") == 10);
+  CHECK(Count(dir.File("store.db"), "state WHERE step = 2") == 0);
+  CHECK(store->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(100));
+  REQUIRE(store->TEST_LimitPages(0).ok());
+  REQUIRE(store->Commit(big).ok());
+  CHECK(Count(dir.File("store.db"), "state WHERE step = 2") == 2000);
+}
+
+TEST_CASE("records naming an unknown series are refused with the series named", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch b;
+  b.series.push_back({"known", "p", 0});
+  b.positions.push_back({"stdin", 0, 5});
+  b.flags.push_back({"ghost", 1, 0, 1, 1, 0, 2, 0.99, 0, "ETS(A,N,N)"});
+  Status status = store->Commit(b);
+  REQUIRE(status.code() == StatusCode::kInvalidArgument);
+  CHECK(status.message().find("flag for series 'ghost'") != std::string::npos);
+  CHECK_FALSE(store->StoredPosition("stdin", 0).has_value());
+  CHECK(store->GetSeries("known").status().code() == StatusCode::kNotFound);
+}
+
+TEST_CASE("a read-only store reads but refuses commits with a clear error", "[store]") {
+  TempDir dir;
+  {
+    auto writer = OpenOrDie(TestOptions(dir));
+    REQUIRE(writer->Commit(FullBatch(3, 1, true, 9)).ok());
+  }
+  StoreOptions options = TestOptions(dir);
+  options.read_only = true;
+  auto reader = OpenOrDie(options);
+  CHECK(reader->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(9));
+  CHECK(reader->GetSeries(SeriesName(1)).ok());
+  Status status = reader->Commit(FullBatch(3, 2, false, 10));
+  INFO(status.ToString());
+  CHECK(status.code() == StatusCode::kUnavailable);
+  CHECK(status.message().find("readonly") != std::string::npos);
+  CHECK(status.message().find(dir.File("store.db")) != std::string::npos);
+  CHECK(reader->counters().commit_failures == 1);
+}
+
+TEST_CASE("a read-only open of a missing file fails instead of creating it", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir, "absent.db");
+  options.read_only = true;
+  Result<std::unique_ptr<Store>> store = Store::Open(options);
+  REQUIRE_FALSE(store.ok());
+  CHECK(store.status().code() == StatusCode::kIoError);
+  CHECK_FALSE(std::filesystem::exists(dir.File("absent.db")));
+}
+
+TEST_CASE("a write lock held by another connection is retried, counted, then reported as busy", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  auto store = OpenOrDie(options);
+  Result<std::unique_ptr<SqliteDb>> other = SqliteDb::Open(options.path, SQLITE_OPEN_READWRITE);
+  REQUIRE(other.ok());
+  REQUIRE((*other)->Exec("BEGIN IMMEDIATE").ok());  // holds the write lock
+  const CommitBatch batch = FullBatch(4, 1, true, 50);
+  Status status = store->Commit(batch);
+  CHECK(status.code() == StatusCode::kBusy);
+  CHECK(store->counters().busy_retries == static_cast<uint64_t>(options.busy_retries));
+  CHECK(store->counters().commit_failures == 1);
+  CHECK_FALSE(store->StoredPosition("file:/in.csv", 0).has_value());
+
+  // Released while the store is backing off: the same batch then commits within its retries.
+  StoreOptions patient = options;
+  patient.busy_retries = 20;
+  patient.backoff_initial_ms = 5;
+  patient.backoff_max_ms = 20;
+  store.reset();
+  store = OpenOrDie(patient);
+  std::thread release([&] {
+    std::this_thread::sleep_for(std::chrono::milliseconds(60));
+    REQUIRE((*other)->Exec("COMMIT").ok());
+  });
+  Status retried = store->Commit(batch);
+  release.join();
+  INFO(retried.ToString());
+  CHECK(retried.ok());
+  CHECK(store->counters().busy_retries >= 1);
+  CHECK(store->StoredPosition("file:/in.csv", 0) == std::optional<int64_t>(50));
+}
+
+TEST_CASE("dead letters keep a truncated raw record and its original size", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.dead_letter_max_bytes = 64;
+  auto store = OpenOrDie(options);
+  CommitBatch b;
+  std::string raw(10'000, 'r');
+  raw[0] = '\0';  // binary-safe
+  b.dead_letters.push_back({1, "kafka:calls", 3, 99, raw, "record of 10000 bytes exceeds 8192", 3});
+  REQUIRE(store->Commit(b).ok());
+  Result<std::vector<StoredDeadLetter>> dead = store->RecentDeadLetters(5);
+  REQUIRE(dead.ok());
+  REQUIRE(dead->size() == 1);
+  CHECK(dead->front().raw_size == 10'000);
+  CHECK(dead->front().record.raw == raw.substr(0, 64));
+  CHECK(dead->front().record.partition == 3);
+  CHECK(dead->front().record.status_code == 3);
+}
+
+TEST_CASE("history tail returns the last points across log and chunks, gaps as NaN", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.history_chunk_points = 16;
+  auto store = OpenOrDie(options);
+  CommitBatch create;
+  create.series = {{"a", "p", 0}, {"b", "p", 0}};
+  REQUIRE(store->Commit(create).ok());
+  // 100 steps for a (step 50 missing: a gap), 10 for b, in commits of 7 points per series.
+  std::vector<double> expected_a;
+  for (int64_t first = 0; first < 100; first += 7) {
+    CommitBatch b;
+    for (int64_t step = first; step < std::min<int64_t>(first + 7, 100); ++step) {
+      if (step != 50) b.history.push_back({"a", step, static_cast<double>(step) * 1.5});
+      if (step < 10) b.history.push_back({"b", step, -static_cast<double>(step)});
+    }
+    REQUIRE(store->Commit(b).ok());
+  }
+  auto check_a = [&](size_t n) {
+    Result<HistorySlice> tail = store->HistoryTail("a", n);
+    REQUIRE(tail.ok());
+    const int64_t first = std::max<int64_t>(0, 100 - static_cast<int64_t>(n));
+    CHECK(tail->first_step == first);
+    REQUIRE(tail->values.size() == static_cast<size_t>(100 - first));
+    for (size_t i = 0; i < tail->values.size(); ++i) {
+      const int64_t step = first + static_cast<int64_t>(i);
+      INFO("step " << step);
+      if (step == 50) {
+        CHECK(std::isnan(tail->values[i]));
+      } else {
+        CHECK(tail->values[i] == static_cast<double>(step) * 1.5);
+      }
+    }
+  };
+  check_a(30);  // all still in the log
+  check_a(500);
+  REQUIRE(store->CompactHistory(5).ok());  // part of the log moved into chunks
+  check_a(30);
+  check_a(60);
+  REQUIRE(store->CompactHistory().ok());
+  CHECK(Count(dir.File("store.db"), "history_log") == 0);
+  check_a(30);
+  check_a(73);
+  check_a(500);
+  // 100 points in chunks of at most 16.
+  CHECK(Count(dir.File("store.db"), "history WHERE series = (SELECT id FROM series WHERE name = 'a')") == 7);
+  Result<HistorySlice> b = store->HistoryTail("b", 4);
+  REQUIRE(b.ok());
+  CHECK(b->first_step == 6);
+  CHECK(b->values == std::vector<double>{-6, -7, -8, -9});
+  // More points after compaction land in the open chunk and read back with the old ones.
+  CommitBatch more;
+  more.history.push_back({"b", 10, -10});
+  REQUIRE(store->Commit(more).ok());
+  REQUIRE(store->CompactHistory().ok());
+  b = store->HistoryTail("b", 100);
+  REQUIRE(b.ok());
+  CHECK(b->first_step == 0);
+  CHECK(b->values.size() == 11);
+  CHECK(b->values.back() == -10);
+  CHECK(store->HistoryTail("nobody", 5).status().code() == StatusCode::kNotFound);
+}
+
+TEST_CASE("commit compacts the history log once it passes the threshold", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.history_compact_points = 1000;
+  auto store = OpenOrDie(options);
+  CommitBatch create;
+  create.series = {{"a", "p", 0}};
+  REQUIRE(store->Commit(create).ok());
+  for (int64_t k = 0; k < 3; ++k) {
+    CommitBatch b;
+    for (int64_t i = 0; i < 400; ++i) b.history.push_back({"a", k * 400 + i, static_cast<double>(k * 400 + i)});
+    REQUIRE(store->Commit(b).ok());
+  }
+  CHECK(store->counters().compactions == 1);
+  CHECK(Count(dir.File("store.db"), "history_log") == 0);
+  Result<HistorySlice> tail = store->HistoryTail("a", 1200);
+  REQUIRE(tail.ok());
+  REQUIRE(tail->values.size() == 1200);
+  for (size_t i = 0; i < 1200; ++i) REQUIRE(tail->values[i] == static_cast<double>(i));
+}
+
+TEST_CASE("series list pages by name and omits state bytes", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  REQUIRE(store->Commit(FullBatch(12, 1, true, 1)).ok());
+  Result<std::vector<StoredSeries>> page = store->ListSeries(5);
+  REQUIRE(page.ok());
+  REQUIRE(page->size() == 5);
+  CHECK(page->front().series.name == "s0");
+  CHECK(page->at(1).series.name == "s1");
+  CHECK(page->at(2).series.name == "s10");  // name order
+  CHECK(page->front().state->encoded.empty());
+  CHECK(page->front().state->step == 1);
+  Result<std::vector<StoredSeries>> rest = store->ListSeries(100, page->back().series.name);
+  REQUIRE(rest.ok());
+  CHECK(rest->size() == 7);
+}
+
+TEST_CASE("synchronous levels parse from text and reject anything else", "[store]") {
+  CHECK(*ParseSynchronous("FULL") == Synchronous::kFull);
+  CHECK(*ParseSynchronous("normal") == Synchronous::kNormal);
+  CHECK(*ParseSynchronous("off") == Synchronous::kOff);
+  Result<Synchronous> bad = ParseSynchronous("sometimes");
+  REQUIRE_FALSE(bad.ok());
+  CHECK(bad.status().message().find("'sometimes'") != std::string::npos);
+}
+
+TEST_CASE("store options are validated and clamped at open", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.history_chunk_points = 1;
+  options.busy_retries = -3;
+  auto store = OpenOrDie(options);
+  CHECK(store->options().history_chunk_points == 16);
+  CHECK(store->options().busy_retries == 0);
+  StoreOptions empty;
+  CHECK(Store::Open(empty).status().code() == StatusCode::kInvalidArgument);
+}
+
+}  // namespace
+}  // namespace plimsoll::store
