@@ -86,8 +86,10 @@ class Problem {
     beta_range_ = Narrow({0.0, admissible ? 4.0 - kEps : 1.0}, options.beta);
     gamma_range_ = Narrow({0.0, admissible ? 2.0 - kEps : 1.0}, options.gamma);
     if (admissible) {
-      beta_range_.lo = std::max(beta_range_.lo, kEps);
-      gamma_range_.lo = std::max(gamma_range_.lo, kEps);
+      // Smallest beta and gamma of the usual boxes (kEps * kEps), so the admissible search
+      // contains the usual one.
+      beta_range_.lo = std::max(beta_range_.lo, kEps * kEps);
+      gamma_range_.lo = std::max(gamma_range_.lo, kEps * kEps);
     }
     phi_range_ = Narrow({kPhiLow, kPhiHigh}, options.phi);
     if (!admissible) {
@@ -153,6 +155,33 @@ class Problem {
     clamp_to(i_gamma_, admissible ? (1.0 - std::min(alpha, 1.0)) * s[2] : s[2]);
     clamp_to(i_phi_, s[3]);
     return z;  // state coordinates 0 = heuristic state
+  }
+
+  // The optimiser vector for a known point (the inverse of Decode), clamped into the boxes.
+  std::vector<double> Encode(const Params& p, const State& st) const {
+    std::vector<double> z(dim(), 0.0);
+    auto put = [&](int i, double v) {
+      if (i >= 0) z[static_cast<size_t>(i)] = std::clamp(v, lower_[static_cast<size_t>(i)], upper_[static_cast<size_t>(i)]);
+    };
+    const bool admissible = options_.region == model::ParamRegion::kAdmissible;
+    put(i_alpha_, p.alpha);
+    auto position = [](double v, double lo, double hi) { return hi > lo ? (v - lo) / (hi - lo) : 0.0; };
+    put(i_beta_, admissible ? p.beta
+                            : position(p.beta, std::max(beta_range_.lo, kEps * p.alpha),
+                                       std::min(beta_range_.hi, (1.0 - kEps) * p.alpha)));
+    put(i_gamma_, admissible ? p.gamma
+                             : position(p.gamma, std::max(gamma_range_.lo, kEps * (1.0 - p.alpha)),
+                                        std::min(gamma_range_.hi, (1.0 - kEps) * (1.0 - p.alpha))));
+    put(i_phi_, p.phi);
+    put(i_level_, (st.level - level0_) / level_scale_);
+    put(i_trend_, (st.trend - trend0_) / trend_scale_);
+    if (estimate_season_) {
+      const std::vector<double> chrono = model::SeasonChronological(st);
+      for (size_t j = 0; j + 1 < chrono.size(); ++j) {
+        put(i_season_ + static_cast<int>(j), (chrono[j] - heuristic_season_[j]) / season_scale_);
+      }
+    }
+    return z;
   }
 
   // Fills params_ and state_ from z. Returns false when z maps outside the region.
@@ -400,13 +429,32 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
     return Status::InvalidArgument(spec.Notation() + ": the fixed beta/gamma and the alpha range leave no room for alpha");
   }
 
+  std::vector<std::vector<double>> start_points;
+  int usual_evaluations = 0;
+  if (options.region == model::ParamRegion::kAdmissible) {
+    // The admissible region contains the usual one: start from the usual optimum, so the wider
+    // search can only improve on it.
+    FitOptions usual_options = options;
+    usual_options.region = model::ParamRegion::kUsual;
+    usual_options.alpha.upper = std::min(options.alpha.upper.value_or(1.0), 1.0 - kEps);
+    usual_options.beta.upper = std::min(options.beta.upper.value_or(1.0), 1.0);
+    usual_options.gamma.upper = std::min(options.gamma.upper.value_or(1.0), 1.0);
+    if (ValidateOptions(usual_options).ok()) {
+      auto usual = FitValidated(spec, y, data, usual_options, clock);
+      if (usual.ok()) {
+        start_points.push_back(problem.Encode(usual->params, usual->initial_state));
+        usual_evaluations = usual->evaluations;
+      }
+    }
+  }
+  const int starts = std::min<int>(options.starts, static_cast<int>(kStarts.size()));
+  for (int s = 0; s < starts; ++s) start_points.push_back(problem.StartPoint(kStarts[static_cast<size_t>(s)]));
+
   FitResult out;
   out.spec = spec;
   out.seasonal_states_estimated = !spec.has_season() || problem.estimate_season();
   StopReason stop = StopReason::kConverged;
-  const int starts = std::min<int>(options.starts, static_cast<int>(kStarts.size()));
-  for (int s = 0; s < starts; ++s) {
-    std::vector<double> z = problem.StartPoint(kStarts[static_cast<size_t>(s)]);
+  for (std::vector<double>& z : start_points) {
     if (problem.Evaluate(z.data()) >= kPenalty) continue;  // infeasible start: try the next
     const int left = options.max_evaluations - problem.evaluations();
     if (left <= 0) {
@@ -453,7 +501,7 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
   out.criteria = model::Criteria(out.loglik, out.n, out.k);
   out.stop = stop;
   out.converged = stop == StopReason::kConverged;
-  out.evaluations = problem.evaluations();
+  out.evaluations = usual_evaluations + problem.evaluations();
   out.seconds = static_cast<double>(clock.MonotonicNanos() - start_nanos) * 1e-9;
   return out;
 }

@@ -63,6 +63,7 @@ Result<model::State> HeuristicState(const model::ModelSpec& spec, std::span<cons
   size_t window = std::min<size_t>(y.size(), kLineWindow);
 
   if (spec.has_season()) {
+    const bool mult = spec.season == model::SeasonType::kMultiplicative;
     if (m < 2) return Status::InvalidArgument("a seasonal form needs a period of at least 2");
     const size_t full = y.size() / static_cast<size_t>(m);
     if (full < static_cast<size_t>(kMinSeasonalPeriods)) {
@@ -71,16 +72,22 @@ Result<model::State> HeuristicState(const model::ModelSpec& spec, std::span<cons
                                      std::to_string(kMinSeasonalPeriods * m) + " observations); history has " +
                                      std::to_string(y.size()));
     }
-    window = std::min<size_t>(full, 3) * static_cast<size_t>(m);
-    const bool mult = spec.season == model::SeasonType::kMultiplicative;
-    std::vector<double> sum(static_cast<size_t>(m), 0.0);
-    std::vector<int> count(static_cast<size_t>(m), 0);
-    for (size_t t = 0; t < window; ++t) {
-      const double ma = CentredAverage(y, window, m, t);
-      if (!std::isfinite(ma) || !std::isfinite(y[t])) continue;
-      if (mult && ma <= 0) continue;
-      sum[t % m] += mult ? y[t] / ma : y[t] - ma;
-      ++count[t % m];
+    // Three periods normally; more when missing values leave a position of the season without
+    // any detrended value.
+    std::vector<double> sum(static_cast<size_t>(m));
+    std::vector<int> count(static_cast<size_t>(m));
+    for (size_t periods = std::min<size_t>(full, 3); periods <= full; ++periods) {
+      window = periods * static_cast<size_t>(m);
+      std::fill(sum.begin(), sum.end(), 0.0);
+      std::fill(count.begin(), count.end(), 0);
+      for (size_t t = 0; t < window; ++t) {
+        const double ma = CentredAverage(y, window, m, t);
+        if (!std::isfinite(ma) || !std::isfinite(y[t])) continue;
+        if (mult && ma <= 0) continue;
+        sum[t % m] += mult ? y[t] / ma : y[t] - ma;
+        ++count[t % m];
+      }
+      if (std::find(count.begin(), count.end(), 0) == count.end()) break;
     }
     season.resize(static_cast<size_t>(m));
     double total = 0.0;
