@@ -42,10 +42,11 @@ class KafkaConf {
   rd_kafka_conf_t* conf_;
 };
 
-// Owns an rd_kafka_t (producer or consumer). The destructor closes with a time limit:
-// a consumer leaves its group (rebalance callbacks still run, on the destroying thread) for at
-// most close_timeout_ms, a producer flushes for at most close_timeout_ms and purges the rest;
-// then the handle is destroyed.
+// Owns an rd_kafka_t (producer or consumer). The destructor closes with a time limit: a
+// consumer leaves its group (rebalance callbacks run on the destroying thread; librdkafka bounds
+// the wait by about session.timeout.ms when the coordinator is gone, and a longer close than
+// close_timeout_ms is logged); a producer flushes for at most close_timeout_ms and purges the
+// rest (purged messages get failed delivery reports). Then the handle is destroyed.
 class KafkaHandle {
  public:
   KafkaHandle() = default;
