@@ -45,6 +45,14 @@ constexpr double kStateBox = 1e4;
 // How often (in evaluations) the time budget is checked; a clock read per evaluation would
 // cost more than the evaluation for short series.
 constexpr int kClockEvery = 16;
+// Screening run per extra start: this many evaluations per dimension plus a base.
+constexpr int kScreenPerDim = 8;
+constexpr int kScreenBase = 40;
+// Restarts after the main run, while each still improves -loglik. Each uses a differently
+// sized first trust region (scale of the initial steps): a restart shaped like the run that just
+// stopped tends to stop at the same point, a wider or narrower one often gets past it.
+constexpr int kMaxRestarts = 3;
+constexpr std::array<double, kMaxRestarts + 1> kRestartStepScale = {1.0, 5.0, 0.2, 1.0};
 
 struct Range {
   double lo;
@@ -58,10 +66,12 @@ Range Narrow(Range base, const ParamControl& c) {
 }
 
 // Where smoothing parameter starts come from, in (alpha, beta*, gamma*, phi).
-constexpr std::array<std::array<double, 4>, 4> kStarts = {{
+constexpr std::array<std::array<double, 4>, 6> kStarts = {{
     {0.5, 0.1, 0.1, 0.97},
-    {0.2, 0.05, 0.05, 0.9},
-    {0.9, 0.3, 0.3, 0.98},
+    {0.9, 0.3, 0.3, 0.82},
+    {0.1, 0.05, 0.05, 0.9},
+    {0.95, 0.05, 0.9, 0.8},
+    {0.3, 0.5, 0.5, 0.98},
     {0.05, 0.01, 0.01, 0.85},
 }};
 
@@ -321,11 +331,15 @@ double NoiseScale(std::span<const double> y) {
 }
 
 // One BOBYQA run from z; returns how it ended. The best point lives in `problem`.
-StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, double tolerance) {
+StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, double tolerance, double step_scale = 1.0) {
   nlopt::opt opt(nlopt::LN_BOBYQA, static_cast<unsigned>(problem.dim()));
   opt.set_lower_bounds(problem.lower());
   opt.set_upper_bounds(problem.upper());
-  opt.set_initial_step(problem.step());
+  std::vector<double> step = problem.step();
+  for (size_t i = 0; i < step.size(); ++i) {
+    step[i] = std::min(step[i] * step_scale, 0.45 * (problem.upper()[i] - problem.lower()[i]));
+  }
+  opt.set_initial_step(step);
   opt.set_min_objective(&Problem::Objective, &problem);
   opt.set_ftol_rel(tolerance);
   opt.set_xtol_rel(1e-9);
@@ -454,31 +468,37 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
   out.spec = spec;
   out.seasonal_states_estimated = !spec.has_season() || problem.estimate_season();
   StopReason stop = StopReason::kConverged;
+  // Several starts: each gets a short screening run; the full run continues from the best point
+  // any of them reached. The surfaces are often multimodal in (alpha, beta, phi), and a screening
+  // run is enough to see which basin a start falls into.
+  const int screen = start_points.size() > 1
+                         ? std::min(options.max_evaluations / static_cast<int>(2 * start_points.size()),
+                                    kScreenPerDim * static_cast<int>(problem.dim()) + kScreenBase)
+                         : 0;
   for (std::vector<double>& z : start_points) {
     if (problem.Evaluate(z.data()) >= kPenalty) continue;  // infeasible start: try the next
-    const int left = options.max_evaluations - problem.evaluations();
-    if (left <= 0) {
-      stop = StopReason::kEvaluationBudget;
-      break;
-    }
-    stop = RunOnce(problem, z, left, options.relative_tolerance);
-    if (stop == StopReason::kTimeBudget) break;
-    // Restart from the best point with a fresh trust region: BOBYQA sometimes stops while its
-    // interpolation set is degenerate; a restart that finds nothing costs ~2 dim + 1 evaluations.
-    const int left_after = options.max_evaluations - problem.evaluations();
-    if (left_after <= 0) {
-      stop = StopReason::kEvaluationBudget;
-      break;
-    }
-    const double before = problem.best_f();
-    stop = RunOnce(problem, problem.best_z(), left_after, options.relative_tolerance);
-    if (stop == StopReason::kTimeBudget) break;
-    // A restart that still improved noticeably gets one more round.
-    if (problem.best_f() < before - 1e-7 * std::fabs(before)) {
-      const int left_more = options.max_evaluations - problem.evaluations();
-      if (left_more > 0) stop = RunOnce(problem, problem.best_z(), left_more, options.relative_tolerance);
-      else stop = StopReason::kEvaluationBudget;
+    if (screen > 0) {
+      stop = RunOnce(problem, z, screen, options.relative_tolerance);
       if (stop == StopReason::kTimeBudget) break;
+    }
+  }
+  // Full run from the best point, then restarts with a fresh trust region: BOBYQA sometimes
+  // stops while its interpolation set is degenerate; a restart that finds nothing costs about
+  // 2 dim + 1 evaluations. At most kMaxRestarts restarts, while they still improve.
+  if (!problem.best_z().empty() && stop != StopReason::kTimeBudget) {
+    const int budget_end = options.max_evaluations;
+    for (int round = 0; round <= kMaxRestarts; ++round) {
+      const int left = budget_end - problem.evaluations();
+      if (left <= 0) {
+        stop = StopReason::kEvaluationBudget;
+        break;
+      }
+      const double before = problem.best_f();
+      stop = RunOnce(problem, problem.best_z(), left, options.relative_tolerance, kRestartStepScale[round]);
+      // A roundoff stop (degenerate interpolation set, common on a flat ridge such as alpha at
+      // its bound) is what the restart is for; budgets end the loop.
+      if (stop == StopReason::kEvaluationBudget || stop == StopReason::kTimeBudget) break;
+      if (round > 0 && !(problem.best_f() < before - 1e-9 * std::fabs(before))) break;
     }
   }
   if (problem.best_z().empty()) {

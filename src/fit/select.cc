@@ -12,7 +12,7 @@ namespace {
 
 using model::ModelSpec;
 
-constexpr int kMaxStarts = 4;
+constexpr int kMaxStarts = 6;
 
 Status CheckControl(const char* name, const ParamControl& c, double lo, double hi, bool hi_inclusive) {
   const std::string n = name;
