@@ -8,6 +8,10 @@
 
 #include <bit>
 #include <cstdint>
+#include <string>
+#include <string_view>
+
+#include "plimsoll/base/bytes.h"
 
 namespace plimsoll::stream {
 
@@ -39,6 +43,24 @@ class AlertTracker {
   }
   bool active() const { return active_; }
   void Reset() { *this = AlertTracker(); }
+
+  std::string Encode() const {
+    ByteWriter w;
+    w.Put(recent_);
+    w.Put(in_band_run_);
+    w.Put<uint8_t>(active_ ? 1 : 0);
+    return w.Take();
+  }
+  // Returns false (tracker unchanged) for malformed bytes.
+  [[nodiscard]] bool Decode(std::string_view bytes) {
+    ByteReader r(bytes);
+    AlertTracker t;
+    uint8_t active = 0;
+    if (!r.Get(t.recent_) || !r.Get(t.in_band_run_) || !r.Get(active) || active > 1 || r.remaining() != 0) return false;
+    t.active_ = active != 0;
+    *this = t;
+    return true;
+  }
 
  private:
   uint64_t recent_ = 0;      // bit i set: the observation i steps back was flagged

@@ -18,18 +18,15 @@
 #include <cmath>
 #include <cstdint>
 #include <limits>
+#include <string>
+#include <string_view>
+
+#include "plimsoll/base/bytes.h"
+
+#include "plimsoll/stream/rules.h"
 
 namespace plimsoll::stream {
 
-// Never renumber: stored with profiles.
-enum class Aggregate : uint8_t { kNone = 0, kCount = 1, kSum = 2, kMean = 3, kMax = 4, kLast = 5 };
-
-struct AlignRules {
-  int64_t interval_ms = 0;          // 0: event-indexed
-  Aggregate aggregate = Aggregate::kNone;
-  int64_t max_gap_steps = 96;       // longer silences re-seed the series
-  int64_t allowed_lateness_ms = 0;  // aggregated feeds: how long a bucket stays open past its end
-};
 
 enum class StepKind : uint8_t { kValue, kGap, kReseed };
 
@@ -48,14 +45,14 @@ class StepAligner {
   // Offers one record; calls emit(const AlignedStep&) for every step it completes, in order.
   // REQUIRES: value finite.
   template <typename Emit>
-  AlignOutcome Offer(const AlignRules& rules, int64_t time_ms, double value, Emit&& emit) {
+  AlignOutcome Offer(const SeriesRules& rules, int64_t time_ms, double value, Emit&& emit) {
     if (rules.interval_ms <= 0) {
       last_step_ = last_step_ == kNoStep ? 0 : last_step_ + 1;
       emit(AlignedStep{StepKind::kValue, last_step_, value});
       return AlignOutcome::kAccepted;
     }
     const int64_t step = FloorDiv(time_ms, rules.interval_ms);
-    if (rules.aggregate == Aggregate::kNone) {
+    if (rules.aggregate == AggregateKind::kNone) {
       if (last_step_ != kNoStep && step <= last_step_) return Reject(step);
       EmitThrough(rules, step, value, emit);
       return AlignOutcome::kAccepted;
@@ -76,8 +73,8 @@ class StepAligner {
   // Closes buckets whose end + allowed lateness is at or before `now_ms`, and for count/sum feeds
   // emits the zero buckets of a silent feed up to the last fully closed one.
   template <typename Emit>
-  void AdvanceClock(const AlignRules& rules, int64_t now_ms, Emit&& emit) {
-    if (rules.interval_ms <= 0 || rules.aggregate == Aggregate::kNone) return;
+  void AdvanceClock(const SeriesRules& rules, int64_t now_ms, Emit&& emit) {
+    if (rules.interval_ms <= 0 || rules.aggregate == AggregateKind::kNone) return;
     // The newest step whose bucket may no longer receive records.
     const int64_t closed_through = FloorDiv(now_ms - rules.allowed_lateness_ms, rules.interval_ms) - 1;
     if (open_step_ != kNoStep && open_step_ <= closed_through) CloseBucket(rules, emit);
@@ -89,15 +86,31 @@ class StepAligner {
 
   int64_t last_step() const { return last_step_; }
   int64_t open_step() const { return open_step_; }
-  // Restores the position after a restart (the last step applied to the stored state).
-  void RestoreLastStep(int64_t step) { last_step_ = step; }
+
+  // Checkpoint of the grid position and the open bucket, so a restart continues exactly.
+  std::string Encode() const {
+    ByteWriter w;
+    for (int64_t v : {last_step_, open_step_, count_}) w.Put(v);
+    for (double v : {sum_, max_, last_}) w.Put(v);
+    return w.Take();
+  }
+  // Returns false (aligner unchanged) for malformed bytes.
+  [[nodiscard]] bool Decode(std::string_view bytes) {
+    ByteReader r(bytes);
+    StepAligner a;
+    if (!r.Get(a.last_step_) || !r.Get(a.open_step_) || !r.Get(a.count_) || !r.Get(a.sum_) || !r.Get(a.max_) ||
+        !r.Get(a.last_) || r.remaining() != 0)
+      return false;
+    *this = a;
+    return true;
+  }
 
  private:
   static int64_t FloorDiv(int64_t a, int64_t b) {
     int64_t q = a / b;
     return (a % b != 0 && ((a < 0) != (b < 0))) ? q - 1 : q;
   }
-  static bool SilenceIsZero(Aggregate a) { return a == Aggregate::kCount || a == Aggregate::kSum; }
+  static bool SilenceIsZero(AggregateKind a) { return a == AggregateKind::kCount || a == AggregateKind::kSum; }
 
   AlignOutcome Reject(int64_t step) const {
     return step == last_step_ ? AlignOutcome::kDuplicate : AlignOutcome::kLate;
@@ -115,20 +128,20 @@ class StepAligner {
     ++count_;
   }
 
-  double BucketValue(Aggregate a) const {
+  double BucketValue(AggregateKind a) const {
     switch (a) {
-      case Aggregate::kCount: return static_cast<double>(count_);
-      case Aggregate::kSum: return sum_;
-      case Aggregate::kMean: return sum_ / static_cast<double>(count_);
-      case Aggregate::kMax: return max_;
-      case Aggregate::kLast:
-      case Aggregate::kNone: return last_;
+      case AggregateKind::kCount: return static_cast<double>(count_);
+      case AggregateKind::kSum: return sum_;
+      case AggregateKind::kMean: return sum_ / static_cast<double>(count_);
+      case AggregateKind::kMax: return max_;
+      case AggregateKind::kLast:
+      case AggregateKind::kNone: return last_;
     }
     return last_;
   }
 
   template <typename Emit>
-  void CloseBucket(const AlignRules& rules, Emit& emit) {
+  void CloseBucket(const SeriesRules& rules, Emit& emit) {
     if (open_step_ == kNoStep) return;
     const int64_t step = open_step_;
     open_step_ = kNoStep;
@@ -137,7 +150,7 @@ class StepAligner {
 
   // Emits what lies between the last step and `step` (gap, zero buckets or re-seed), then `step`.
   template <typename Emit>
-  void EmitThrough(const AlignRules& rules, int64_t step, double value, Emit& emit) {
+  void EmitThrough(const SeriesRules& rules, int64_t step, double value, Emit& emit) {
     if (last_step_ != kNoStep) {
       const int64_t missing = step - last_step_ - 1;
       if (missing > rules.max_gap_steps) {

@@ -10,6 +10,16 @@ namespace {
 
 constexpr int64_t kMinute = 60'000;
 
+SeriesRules Grid(int64_t interval_ms, AggregateKind aggregate = AggregateKind::kNone, int64_t max_gap_steps = 96,
+                 int64_t allowed_lateness_ms = 0) {
+  SeriesRules rules;
+  rules.interval_ms = interval_ms;
+  rules.aggregate = aggregate;
+  rules.max_gap_steps = max_gap_steps;
+  rules.allowed_lateness_ms = allowed_lateness_ms;
+  return rules;
+}
+
 struct Recorder {
   std::vector<AlignedStep> steps;
   void operator()(const AlignedStep& s) { steps.push_back(s); }
@@ -36,7 +46,7 @@ struct Recorder {
 }  // namespace
 
 TEST_CASE("consecutive intervals become consecutive steps", "[stream]") {
-  AlignRules rules{.interval_ms = 15 * kMinute};
+  SeriesRules rules = Grid(15 * kMinute);
   StepAligner aligner;
   Recorder rec;
   CHECK(aligner.Offer(rules, 0, 1.0, rec) == AlignOutcome::kAccepted);
@@ -45,7 +55,7 @@ TEST_CASE("consecutive intervals become consecutive steps", "[stream]") {
 }
 
 TEST_CASE("a gap yields prediction-only steps and a long silence re-seeds", "[stream]") {
-  AlignRules rules{.interval_ms = kMinute, .max_gap_steps = 3};
+  SeriesRules rules = Grid(kMinute, AggregateKind::kNone, 3);
   StepAligner aligner;
   Recorder rec;
   CHECK(aligner.Offer(rules, 0, 1.0, rec) == AlignOutcome::kAccepted);
@@ -55,7 +65,7 @@ TEST_CASE("a gap yields prediction-only steps and a long silence re-seeds", "[st
 }
 
 TEST_CASE("late and duplicate steps are rejected", "[stream]") {
-  AlignRules rules{.interval_ms = kMinute};
+  SeriesRules rules = Grid(kMinute);
   StepAligner aligner;
   Recorder rec;
   REQUIRE(aligner.Offer(rules, 5 * kMinute, 1.0, rec) == AlignOutcome::kAccepted);
@@ -65,7 +75,7 @@ TEST_CASE("late and duplicate steps are rejected", "[stream]") {
 }
 
 TEST_CASE("event-indexed series number records in arrival order", "[stream]") {
-  AlignRules rules{};
+  SeriesRules rules = Grid(0);
   StepAligner aligner;
   Recorder rec;
   for (double v : {4.0, 5.0, 6.0}) CHECK(aligner.Offer(rules, 0, v, rec) == AlignOutcome::kAccepted);
@@ -75,18 +85,18 @@ TEST_CASE("event-indexed series number records in arrival order", "[stream]") {
 TEST_CASE("aggregated buckets close when a later bucket's record arrives", "[stream]") {
   StepAligner mean_aligner;
   Recorder rec;
-  AlignRules mean{.interval_ms = kMinute, .aggregate = Aggregate::kMean};
+  SeriesRules mean = Grid(kMinute, AggregateKind::kMean);
   for (double v : {1.0, 2.0, 6.0}) REQUIRE(mean_aligner.Offer(mean, 10, v, rec) == AlignOutcome::kAccepted);
   CHECK(rec.steps.empty());
   REQUIRE(mean_aligner.Offer(mean, 2 * kMinute, 7.0, rec) == AlignOutcome::kAccepted);
   CHECK(rec.Text() == "v0=3");  // bucket 1 is known missing only when bucket 2 closes
   CHECK(mean_aligner.Offer(mean, 20, 1.0, rec) == AlignOutcome::kLate);
 
-  for (auto [aggregate, expected] : {std::pair{Aggregate::kCount, "v0=3"}, std::pair{Aggregate::kSum, "v0=9"},
-                                     std::pair{Aggregate::kMax, "v0=6"}, std::pair{Aggregate::kLast, "v0=6"}}) {
+  for (auto [aggregate, expected] : {std::pair{AggregateKind::kCount, "v0=3"}, std::pair{AggregateKind::kSum, "v0=9"},
+                                     std::pair{AggregateKind::kMax, "v0=6"}, std::pair{AggregateKind::kLast, "v0=6"}}) {
     StepAligner aligner;
     Recorder r;
-    AlignRules rules{.interval_ms = kMinute, .aggregate = aggregate};
+    SeriesRules rules = Grid(kMinute, aggregate);
     for (double v : {1.0, 2.0, 6.0}) REQUIRE(aligner.Offer(rules, 10, v, r) == AlignOutcome::kAccepted);
     aligner.AdvanceClock(rules, kMinute, r);
     CHECK(r.Text() == expected);
@@ -94,7 +104,7 @@ TEST_CASE("aggregated buckets close when a later bucket's record arrives", "[str
 }
 
 TEST_CASE("a silent count feed yields zero-count steps as the clock passes", "[stream]") {
-  AlignRules rules{.interval_ms = kMinute, .aggregate = Aggregate::kCount, .allowed_lateness_ms = 5'000};
+  SeriesRules rules = Grid(kMinute, AggregateKind::kCount, 96, 5'000);
   StepAligner aligner;
   Recorder rec;
   REQUIRE(aligner.Offer(rules, 1'000, 1.0, rec) == AlignOutcome::kAccepted);
@@ -114,7 +124,7 @@ TEST_CASE("a silent count feed yields zero-count steps as the clock passes", "[s
 }
 
 TEST_CASE("negative epoch times fall on the grid by floor division", "[stream]") {
-  AlignRules rules{.interval_ms = kMinute};
+  SeriesRules rules = Grid(kMinute);
   StepAligner aligner;
   Recorder rec;
   REQUIRE(aligner.Offer(rules, -1, 1.0, rec) == AlignOutcome::kAccepted);

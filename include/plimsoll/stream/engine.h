@@ -1,0 +1,218 @@
+#pragma once
+// Engine: the owner-thread core of plimsoll. It takes decoded observations, routes each to its
+// series (creating series on first sight from the first matching profile), aligns it on the
+// series' interval grid, advances the series' ETS model one step, flags values outside the
+// one-step band, tracks alerts, and collects everything that must become durable in an
+// EngineBatch that the caller commits (with the source positions) in one store transaction.
+//
+// Thread-safety: none. One thread (the owner) calls every method; no locks on the per-observation
+// path. Other threads see engine data only through snapshots the owner publishes.
+
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <optional>
+#include <span>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "plimsoll/base/clock.h"
+#include "plimsoll/base/status.h"
+#include "plimsoll/model/params.h"
+#include "plimsoll/model/spec.h"
+#include "plimsoll/model/state.h"
+#include "plimsoll/stream/rules.h"
+
+namespace plimsoll::stream {
+
+// Result of fitting a series' history (the fit module provides it through a ModelChooser).
+struct ModelChoice {
+  model::ModelSpec spec;
+  model::Params params;
+  model::State initial;  // state before history[0]; sigma2 set
+  double loglik = 0.0;
+  double aicc = 0.0;
+  std::string note;      // e.g. "seasonal states kept from the heuristic (m > 24)"
+};
+
+// Fits `history` (NaN = missing) under `rules`; `additive_only` restricts to additive forms (a
+// non-positive value reached a multiplicative model). Must be deterministic.
+using ModelChooser =
+    std::function<Result<ModelChoice>(std::span<const double> history, const SeriesRules& rules, bool additive_only)>;
+
+using SeriesId = uint32_t;
+
+struct FlagRecord {
+  SeriesId series;
+  int64_t step;
+  int64_t time_ms;
+  double value;
+  double expected;
+  double lower;
+  double upper;
+  double level;  // two-sided band level, e.g. 0.99
+  double score;  // standardised innovation: innovation / sigma
+  model::ModelSpec form;
+};
+
+enum class AlertKind : uint8_t { kRaised = 1, kCleared = 2 };
+
+struct AlertRecord {
+  SeriesId series;
+  int64_t step;
+  int64_t time_ms;
+  AlertKind kind;
+};
+
+struct HistoryPoint {
+  SeriesId series;
+  int64_t step;
+  double value;  // NaN: gap
+};
+
+struct DeadLetter {
+  std::string raw;      // the record as received, truncated to EngineOptions::dead_letter_bytes
+  std::string reason;   // names the record's problem, e.g. "late: step 12 of 'queue-3' already passed"
+  StatusCode code;
+  int32_t stream_index; // RecordSource::Streams() index, -1 when not from a source
+  int64_t offset;
+};
+
+// Never renumber: stored in the events table.
+enum class EventKind : uint8_t { kModelChosen = 1, kReseeded = 2, kFitFailed = 3, kRefitQueued = 4, kCreated = 5 };
+
+struct EngineEvent {
+  SeriesId series;
+  int64_t step;
+  EventKind kind;
+  std::string detail;  // JSON object text
+};
+
+// A model put in force for a series (after warm-up or a refit).
+struct ModelChange {
+  SeriesId series;
+  int64_t step;
+  ModelChoice choice;
+  std::string reason;  // "warmup" or the caller's reason for InstallModel
+};
+
+// Everything since the last TakeBatch() that must become durable together.
+struct EngineBatch {
+  std::vector<FlagRecord> flags;
+  std::vector<AlertRecord> alerts;
+  std::vector<HistoryPoint> history;
+  std::vector<DeadLetter> dead_letters;
+  std::vector<EngineEvent> events;
+  std::vector<ModelChange> models;
+  std::vector<SeriesId> dirty;  // series whose checkpoint changed (each once)
+  size_t observations = 0;      // records accepted
+  bool empty() const {
+    return observations == 0 && dead_letters.empty() && events.empty() && models.empty() && dirty.empty();
+  }
+};
+
+struct EngineOptions {
+  std::vector<SeriesRules> profiles;  // first match wins; a series no profile matches is dead-lettered
+  bool create_series = true;          // false: records for unknown series are dead-lettered
+  size_t max_series = 10'000'000;     // creation beyond this is refused (dead letter), protects memory
+  size_t dead_letter_bytes = 1024;    // raw record bytes kept per dead letter
+};
+
+struct EngineCounters {
+  uint64_t observations = 0;  // accepted records
+  uint64_t steps = 0;         // model updates including gap steps
+  uint64_t flags = 0;
+  uint64_t alerts_raised = 0;
+  uint64_t alerts_cleared = 0;
+  uint64_t dead_letters = 0;
+  uint64_t fits = 0;
+  uint64_t fit_failures = 0;
+  uint64_t reseeds = 0;
+};
+
+// Snapshot of one series for readers (inspect, HTTP).
+struct SeriesView {
+  SeriesId id;
+  std::string name;
+  std::string profile;
+  bool warming_up;
+  int64_t last_step;
+  std::optional<model::ModelSpec> form;
+  model::Params params;
+  model::State state;
+  bool alert_active;
+};
+
+class Engine {
+ public:
+  // REQUIRES: chooser non-null, clock non-null and outliving the engine. Throws std::invalid_argument
+  // for invalid profiles (start-up only).
+  Engine(EngineOptions options, ModelChooser chooser, Clock* clock);
+  ~Engine();
+  Engine(const Engine&) = delete;
+  Engine& operator=(const Engine&) = delete;
+
+  // Applies one decoded observation. Problems (unknown series, late step, non-positive value for
+  // a multiplicative form, ...) become dead letters carrying `raw`; never fails.
+  void Observe(std::string_view series, int64_t time_ms, double value, std::string_view raw,
+               int32_t stream_index, int64_t offset);
+
+  // Records a record that could not be decoded.
+  void RejectRecord(std::string_view raw, const Status& why, int32_t stream_index, int64_t offset);
+
+  // Closes aggregation buckets whose time has passed (silent count feeds yield zero steps).
+  void AdvanceClock(int64_t now_ms);
+
+  // Moves the pending durable work out (the caller commits it).
+  EngineBatch TakeBatch();
+
+  // Series whose model must be refitted (today: a non-positive value met a multiplicative form,
+  // so the refit is restricted to additive forms), each once since the last call.
+  std::vector<SeriesId> TakeRefitRequests();
+
+  // Swaps in a new model for a series: replays `history` (every step from the one the choice's
+  // initial state precedes through the series' last step, NaN for gaps) with the new model and
+  // replaces model and state. InvalidArgument when the series is still warming up or the replay
+  // fails; the current model stays then.
+  Status InstallModel(SeriesId id, const ModelChoice& choice, std::span<const double> history,
+                      std::string_view reason);
+
+  // Fits the series afresh on `history` (its stored steps through its last one, NaN for gaps)
+  // with the engine's chooser (additive forms only once a non-positive value was seen) and
+  // installs the result with InstallModel. The current model stays when either step fails.
+  Status Refit(SeriesId id, std::span<const double> history, std::string_view reason);
+
+  // Serialises a series' full checkpoint (model, state, alignment, alerts) for the store, and
+  // restores one at start-up. A series still warming up needs its stored history tail (at least
+  // the profile's `history` steps, NaN for gaps) to rebuild its warm-up buffer. Restore fails
+  // with Corruption for a bad blob or too short a history.
+  std::string EncodeCheckpoint(SeriesId id) const;
+  // `warmup_history` is called only for a series that is still warming up.
+  using HistoryFetcher = std::function<Result<std::vector<double>>()>;
+  Status RestoreSeries(std::string_view name, std::string_view checkpoint, const HistoryFetcher& warmup_history);
+
+  const std::string& SeriesName(SeriesId id) const;
+  // The newest step applied to a series and the time of the record that produced it.
+  struct Position {
+    int64_t last_step;
+    int64_t last_time_ms;
+  };
+  Position SeriesPosition(SeriesId id) const;
+  std::optional<SeriesId> FindSeries(std::string_view name) const;
+  size_t series_count() const;
+  SeriesView View(SeriesId id) const;
+  const EngineCounters& counters() const { return counters_; }
+  const EngineOptions& options() const { return options_; }
+
+  // Resident bytes of the per-series structures (benchmark figure).
+  size_t ResidentBytes() const;
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+  EngineOptions options_;
+  EngineCounters counters_;
+};
+
+}  // namespace plimsoll::stream

@@ -1,0 +1,80 @@
+#pragma once
+// CommitWriter: the write-behind stage. The owner thread hands it one store::CommitBatch at a
+// time; a dedicated thread writes it to SQLite (Store::Commit: one transaction with the source
+// positions) and hands it back once durable, so the owner can acknowledge positions and publish
+// outputs. While a batch is being written the owner keeps accumulating the next one, so commits
+// grow with load (group commit) instead of stalling the hot path.
+//
+// A failing commit (disk full, read-only, busy) is retried with backoff, counted and logged
+// (rate-limited); the batch is never dropped. Back-pressure: Submit blocks while a batch is in
+// flight, and the owner only calls it when it must (see Daemon).
+//
+// Thread-safety: Submit/TakeDurable/WaitIdle/Stop from the owner thread; the writer thread is
+// internal. The mutex guards only the hand-over slots, never the per-observation path.
+
+#include <atomic>
+#include <condition_variable>
+#include <cstdint>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <thread>
+
+#include "plimsoll/base/clock.h"
+#include "plimsoll/base/status.h"
+#include "plimsoll/store/store.h"
+
+namespace plimsoll::stream {
+
+struct CommitWriterCounters {
+  std::atomic<uint64_t> batches{0};        // durable commits
+  std::atomic<uint64_t> failed_attempts{0};
+  std::atomic<uint64_t> submit_waits{0};   // Submit calls that had to wait for the writer
+  std::atomic<int64_t> submit_wait_micros{0};
+  std::atomic<int64_t> last_commit_micros{0};
+};
+
+class CommitWriter {
+ public:
+  // Takes ownership of the store; from now on only the writer thread touches it.
+  CommitWriter(std::unique_ptr<store::Store> store, Clock* clock);
+  // Stops after the batch in flight (see Stop). Never throws.
+  ~CommitWriter();
+  CommitWriter(const CommitWriter&) = delete;
+  CommitWriter& operator=(const CommitWriter&) = delete;
+
+  // True while a submitted batch is not yet durable.
+  bool busy() const;
+  // Hands a batch over; waits (counted) while the previous one is still in flight.
+  void Submit(store::CommitBatch batch);
+  // The batch made durable since the last call, if any (its positions may be acknowledged).
+  std::optional<store::CommitBatch> TakeDurable();
+  // Waits until the batch in flight is durable or `timeout_ms` passes. Returns Unavailable
+  // naming the last error when the time passed with the batch unwritten. REQUIRES: the previous
+  // durable batch was taken (the writer hands batches back in order).
+  Status WaitDurable(int64_t timeout_ms);
+  // Ends the writer thread after its current attempt. A batch still unwritten stays unwritten:
+  // the positions it carried were never stored, so the source re-reads those records.
+  void Stop();
+
+  const CommitWriterCounters& counters() const { return counters_; }
+  // The store's own counters, copied under the lock (for metrics).
+  store::StoreCounters StoreCounters() const;
+
+ private:
+  void Loop();
+
+  std::unique_ptr<store::Store> store_;
+  Clock* clock_;
+  CommitWriterCounters counters_;
+  mutable std::mutex mu_;
+  std::condition_variable cv_;
+  std::optional<store::CommitBatch> pending_;  // GUARDED_BY(mu_): submitted, not yet durable
+  std::optional<store::CommitBatch> durable_;  // GUARDED_BY(mu_): durable, not yet taken
+  Status last_error_;                          // GUARDED_BY(mu_)
+  store::StoreCounters store_counters_;        // GUARDED_BY(mu_)
+  bool stop_ = false;                          // GUARDED_BY(mu_)
+  std::thread thread_;                         // last: started after every member exists
+};
+
+}  // namespace plimsoll::stream

@@ -1,0 +1,351 @@
+#include "plimsoll/stream/daemon.h"
+
+#include <spdlog/spdlog.h>
+
+#include <algorithm>
+#include <cmath>
+#include <map>
+#include <utility>
+
+#include "plimsoll/stream/config.h"
+#include "stream/commit_writer.h"
+
+namespace plimsoll::stream {
+namespace {
+
+std::string_view EventKindName(EventKind kind) {
+  switch (kind) {
+    case EventKind::kModelChosen: return "model_chosen";
+    case EventKind::kReseeded: return "reseeded";
+    case EventKind::kFitFailed: return "fit_failed";
+    case EventKind::kRefitQueued: return "refit_queued";
+    case EventKind::kCreated: return "created";
+  }
+  return "unknown";
+}
+
+double IfUsed(bool used, double value) { return used ? value : store::kNoValue; }
+
+}  // namespace
+
+struct Daemon::Impl {
+  Clock* clock;
+  std::string store_path;
+  std::unique_ptr<CommitWriter> writer;
+  std::unique_ptr<store::Store> reader;  // read-only connection for history reads (refits)
+  // Durable positions (owner thread only): what sources resume from.
+  std::map<std::pair<std::string, int32_t>, int64_t> durable_positions;
+  // Positions reached by records taken into the engine, by stream index, not yet submitted.
+  std::vector<int64_t> next_offsets;
+  std::vector<bool> offset_changed;
+};
+
+Daemon::Daemon(const DaemonOptions& options, std::unique_ptr<Engine> engine, std::string store_path, Clock* clock)
+    : options_(options), engine_(std::move(engine)), impl_(std::make_unique<Impl>()) {
+  impl_->clock = clock;
+  impl_->store_path = std::move(store_path);
+}
+
+Daemon::~Daemon() = default;
+
+Result<std::unique_ptr<Daemon>> Daemon::Open(const DaemonOptions& options, EngineOptions engine_options,
+                                             ModelChooser chooser, std::unique_ptr<store::Store> store,
+                                             Clock* clock) {
+  auto engine = std::make_unique<Engine>(std::move(engine_options), std::move(chooser), clock);
+  std::unique_ptr<Daemon> daemon(new Daemon(options, std::move(engine), store->options().path, clock));
+  size_t restored = 0, skipped = 0;
+  Status load = store->ForEachSeries([&](const store::StoredSeries& stored) -> Status {
+    if (!stored.state) return Status::Ok();
+    const std::string& name = stored.series.name;
+    auto fetch = [&]() -> Result<std::vector<double>> {
+      Result<store::HistorySlice> slice = store->HistoryTail(name, static_cast<size_t>(options.history_restore_points));
+      if (!slice.ok()) return slice.status();
+      return std::move(slice->values);
+    };
+    Status s = daemon->engine_->RestoreSeries(name, stored.state->encoded, fetch);
+    if (s.code() == StatusCode::kNotFound) {
+      spdlog::warn("stored series '{}' skipped: {}", name, s.message());
+      ++skipped;
+      return Status::Ok();
+    }
+    if (s.ok()) ++restored;
+    return s;
+  });
+  if (!load.ok()) return load.WithContext("loading stored series");
+  for (const store::PositionRecord& p : store->Positions())
+    daemon->impl_->durable_positions[{p.stream, p.partition}] = p.next_offset;
+  spdlog::info("store {}: {} series restored, {} skipped, {} source positions", store->options().path, restored,
+               skipped, daemon->impl_->durable_positions.size());
+  store::StoreOptions read_options = store->options();
+  read_options.read_only = true;
+  Result<std::unique_ptr<store::Store>> reader = store::Store::Open(read_options);
+  if (!reader.ok()) return reader.status().WithContext("opening a read connection");
+  daemon->impl_->reader = std::move(reader).value();
+  daemon->impl_->writer = std::make_unique<CommitWriter>(std::move(store), clock);
+  return daemon;
+}
+
+PositionLookup Daemon::Positions() const {
+  const Impl* impl = impl_.get();
+  return [impl](const StreamId& stream) -> std::optional<int64_t> {
+    auto it = impl->durable_positions.find({stream.name, stream.partition});
+    if (it == impl->durable_positions.end()) return std::nullopt;
+    return it->second;
+  };
+}
+
+void Daemon::RefitQueued(SeriesId id) {
+  const std::string& name = engine_->SeriesName(id);
+  Result<store::HistorySlice> history =
+      impl_->reader->HistoryTail(name, static_cast<size_t>(options_.history_restore_points));
+  Status status = history.ok() ? engine_->Refit(id, history->values, "additive refit after a non-positive value")
+                               : history.status();
+  if (status.ok()) {
+    counters_.refits.fetch_add(1, std::memory_order_relaxed);
+    spdlog::info("series '{}': additive refit installed ({} points)", name, history->values.size());
+  } else {
+    counters_.refit_failures.fetch_add(1, std::memory_order_relaxed);
+    spdlog::warn("series '{}': additive refit failed, current model kept: {}", name, status.ToString());
+  }
+}
+
+store::StoreCounters Daemon::StoreCounters() const { return impl_->writer->StoreCounters(); }
+
+namespace {
+
+// Turns the engine's id-keyed batch into the store's rows (names, encoded checkpoints).
+store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch&& batch, int64_t now_ms,
+                                std::span<const StreamId> streams, std::vector<int64_t>& next_offsets,
+                                std::vector<bool>& offset_changed) {
+  store::CommitBatch out;
+  const auto name = [&](SeriesId id) -> const std::string& { return engine.SeriesName(id); };
+  for (const EngineEvent& e : batch.events) {
+    if (e.kind == EventKind::kCreated)
+      out.series.push_back({name(e.series), engine.View(e.series).profile, now_ms});
+    out.events.push_back({now_ms, name(e.series), std::string(EventKindName(e.kind)), e.detail});
+  }
+  for (const ModelChange& m : batch.models) {
+    const model::ModelSpec& f = m.choice.spec;
+    out.models.push_back(store::ModelRecord{name(m.series), f.Notation(), f.period, m.choice.params.alpha,
+                                            IfUsed(f.has_trend(), m.choice.params.beta),
+                                            IfUsed(f.has_season(), m.choice.params.gamma),
+                                            IfUsed(f.damped(), m.choice.params.phi), m.choice.initial.sigma2,
+                                            m.choice.loglik, m.choice.aicc, now_ms, m.reason});
+  }
+  out.states.reserve(batch.dirty.size());
+  for (SeriesId id : batch.dirty) {
+    const Engine::Position pos = engine.SeriesPosition(id);
+    out.states.push_back({name(id), pos.last_step, pos.last_time_ms, engine.EncodeCheckpoint(id)});
+  }
+  out.history.reserve(batch.history.size());
+  for (const HistoryPoint& h : batch.history) out.history.push_back({name(h.series), h.step, h.value});
+  for (const FlagRecord& f : batch.flags)
+    out.flags.push_back(store::FlagRecord{name(f.series), f.step, f.time_ms, f.value, f.expected, f.lower, f.upper,
+                                          f.level, f.score, f.form.Notation()});
+  for (const AlertRecord& a : batch.alerts)
+    out.alerts.push_back(store::AlertRecord{
+        name(a.series), a.step, a.time_ms,
+        a.kind == AlertKind::kRaised ? store::AlertKind::kRaised : store::AlertKind::kCleared, "{}"});
+  for (DeadLetter& d : batch.dead_letters) {
+    const bool from_stream = d.stream_index >= 0 && static_cast<size_t>(d.stream_index) < streams.size();
+    out.dead_letters.push_back(store::DeadLetterRecord{
+        now_ms, from_stream ? streams[d.stream_index].name : std::string(),
+        from_stream ? streams[d.stream_index].partition : 0, d.offset, std::move(d.raw), std::move(d.reason),
+        static_cast<int32_t>(d.code)});
+  }
+  for (size_t i = 0; i < offset_changed.size() && i < streams.size(); ++i) {
+    if (!offset_changed[i]) continue;
+    out.positions.push_back({streams[i].name, streams[i].partition, next_offsets[i]});
+    offset_changed[i] = false;
+  }
+  return out;
+}
+
+}  // namespace
+
+Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atomic<bool>& stop, OutputSink* sink) {
+  Impl& im = *impl_;
+  Clock* clock = im.clock;
+  std::vector<RawRecord> records;
+  records.reserve(options_.poll_records);
+  size_t uncommitted = 0;
+  int64_t last_commit_ns = clock->MonotonicNanos();
+  int64_t last_clock_ns = last_commit_ns;
+  int64_t newest_record_ms = INT64_MIN;
+  bool paused = false;
+  int64_t paused_since_ns = 0;
+  Status source_status;
+
+  const auto handle_durable = [&](store::CommitBatch&& durable) {
+    counters_.commits.fetch_add(1, std::memory_order_relaxed);
+    std::vector<SourcePosition> acks;
+    for (const store::PositionRecord& p : durable.positions) {
+      im.durable_positions[{p.stream, p.partition}] = p.next_offset;
+      acks.push_back({StreamId{p.stream, p.partition}, p.next_offset});
+    }
+    if (!acks.empty()) {
+      Status ack = source.Acknowledge(acks);
+      if (!ack.ok()) counters_.acknowledge_errors.fetch_add(1, std::memory_order_relaxed);
+    }
+    if (sink != nullptr) {
+      Status published = sink->Publish(durable);
+      if (!published.ok()) counters_.sink_errors.fetch_add(1, std::memory_order_relaxed);
+    }
+  };
+  const auto take_durable = [&] {
+    if (std::optional<store::CommitBatch> durable = im.writer->TakeDurable()) handle_durable(std::move(*durable));
+  };
+  const auto submit = [&] {
+    store::CommitBatch batch = ToStoreBatch(*engine_, engine_->TakeBatch(), clock->WallMillis(), source.Streams(),
+                                            im.next_offsets, im.offset_changed);
+    if (!batch.empty()) im.writer->Submit(std::move(batch));
+    uncommitted = 0;
+    last_commit_ns = clock->MonotonicNanos();
+  };
+  // Commits everything and waits until it is durable (shutdown, refits).
+  const auto drain = [&](int64_t timeout_ms) -> Status {
+    take_durable();
+    submit();
+    const int64_t deadline = clock->MonotonicNanos() + timeout_ms * 1'000'000;
+    while (im.writer->busy()) {
+      take_durable();
+      if (clock->MonotonicNanos() > deadline) return im.writer->WaitDurable(0);
+      Status waited = im.writer->WaitDurable(50);
+      take_durable();
+      if (waited.ok()) continue;
+    }
+    take_durable();
+    return Status::Ok();
+  };
+  const auto set_paused = [&](bool pause) {
+    if (pause == paused) return;
+    paused = pause;
+    for (const StreamId& stream : source.Streams()) {
+      Status s = pause ? source.Pause(stream) : source.Resume(stream);
+      if (!s.ok()) spdlog::warn("{} of {}[{}] failed: {}", pause ? "pause" : "resume", stream.name, stream.partition,
+                                s.ToString());
+    }
+    if (pause) {
+      counters_.pauses.fetch_add(1, std::memory_order_relaxed);
+      paused_since_ns = clock->MonotonicNanos();
+    } else {
+      counters_.paused_micros.fetch_add((clock->MonotonicNanos() - paused_since_ns) / 1000, std::memory_order_relaxed);
+    }
+  };
+
+  bool end_of_input = false;
+  while (!stop.load(std::memory_order_relaxed) && !end_of_input) {
+    take_durable();
+    // While paused, Poll with max_records = 0 keeps the source alive without taking records.
+    source_status = source.Poll(records, paused ? 0 : options_.poll_records, options_.poll_timeout_ms);
+    if (source_status.code() == StatusCode::kAborted) {
+      end_of_input = true;
+    } else if (!source_status.ok()) {
+      spdlog::error("source failed: {}", source_status.ToString());
+      break;
+    }
+    const size_t stream_count = source.Streams().size();
+    if (im.next_offsets.size() < stream_count) {
+      im.next_offsets.resize(stream_count, 0);
+      im.offset_changed.resize(stream_count, false);
+    }
+    for (const RawRecord& rec : records) {
+      DecodedRecord decoded;
+      Status status = decoder.Decode(rec, decoded);
+      if (!status.ok()) {
+        counters_.decode_errors.fetch_add(1, std::memory_order_relaxed);
+        engine_->RejectRecord(rec.payload, status, rec.stream_index, rec.offset);
+      } else if (decoded.skip) {
+        counters_.skipped_lines.fetch_add(1, std::memory_order_relaxed);
+      } else {
+        engine_->Observe(decoded.series, decoded.time_ms, decoded.value, rec.payload, rec.stream_index, rec.offset);
+        newest_record_ms = std::max(newest_record_ms, decoded.time_ms);
+      }
+      im.next_offsets[rec.stream_index] = rec.next_offset;
+      im.offset_changed[rec.stream_index] = true;
+    }
+    counters_.records.fetch_add(records.size(), std::memory_order_relaxed);
+    uncommitted += records.size();
+
+    const int64_t now_ns = clock->MonotonicNanos();
+    if (now_ns - last_clock_ns >= options_.commit_ms * 1'000'000 / 2) {
+      last_clock_ns = now_ns;
+      if (!options_.event_time) engine_->AdvanceClock(clock->WallMillis());
+      else if (newest_record_ms != INT64_MIN) engine_->AdvanceClock(newest_record_ms);
+    }
+    const bool due = uncommitted >= options_.commit_records || now_ns - last_commit_ns >= options_.commit_ms * 1'000'000;
+    if (due && !im.writer->busy()) {
+      submit();
+      set_paused(false);
+    } else if (uncommitted >= options_.max_uncommitted_records) {
+      set_paused(true);
+      IgnoreError(im.writer->WaitDurable(options_.poll_timeout_ms));  // wait a little, then poll again
+    }
+
+    std::vector<SeriesId> refits = engine_->TakeRefitRequests();
+    if (!refits.empty()) {
+      // History must be durable through each series' last step before it is read back.
+      Status drained = drain(options_.shutdown_timeout_ms);
+      if (!drained.ok()) {
+        spdlog::error("additive refit postponed: {}", drained.ToString());
+        continue;
+      }
+      for (SeriesId id : refits) RefitQueued(id);
+    }
+  }
+  set_paused(false);
+  Status drained = drain(options_.shutdown_timeout_ms);
+  if (!drained.ok()) {
+    spdlog::error("final commit not durable: {}", drained.ToString());
+    return drained;
+  }
+  if (source_status.ok() || source_status.code() == StatusCode::kAborted) return Status::Ok();
+  return source_status;
+}
+
+}  // namespace plimsoll::stream
+
+namespace plimsoll::stream {
+
+EngineOptions EngineOptionsFromConfig(const Config& config) {
+  EngineOptions out;
+  out.create_series = config.series.create;
+  out.max_series = static_cast<size_t>(config.series.max_count);
+  for (const ProfileOptions& p : config.profiles) {
+    SeriesRules r;
+    r.match = p.match;
+    r.interval_ms = p.interval_ms.value_or(0);
+    r.aggregate = p.aggregate;
+    r.allowed_lateness_ms = p.allowed_lateness_ms;
+    if (!p.max_gap_ms || r.interval_ms == 0) r.max_gap_steps = INT64_MAX;
+    else r.max_gap_steps = std::max<int64_t>(1, *p.max_gap_ms / r.interval_ms);
+    r.period = p.period;
+    r.forms = p.forms;
+    r.band_level = p.band;
+    r.history = p.history > 0 ? p.history : std::max(1000, 10 * p.period);
+    r.warmup = p.warmup > 0 ? p.warmup : std::max(20, 3 * p.period);
+    r.history = std::max(r.history, r.warmup);
+    r.policy = p.policy;
+    r.breach_run = config.band.breach_run;
+    r.breach_window = config.band.breach_window > 0 ? config.band.breach_window : config.band.breach_run;
+    r.clear_run = config.band.clear_run;
+    out.profiles.push_back(std::move(r));
+  }
+  return out;
+}
+
+DaemonOptions DaemonOptionsFromConfig(const Config& config) {
+  DaemonOptions out;
+  out.commit_ms = config.store.commit_ms;
+  out.commit_records = static_cast<size_t>(config.store.commit_records);
+  out.max_uncommitted_records = std::max<size_t>(out.commit_records * 20, 100'000);
+  // A file is a replay: its own times drive bucket closing, so reruns give identical results.
+  out.event_time = config.source.kind == SourceKind::kFile;
+  int longest_history = 0;
+  for (const ProfileOptions& p : config.profiles)
+    longest_history = std::max(longest_history, p.history > 0 ? p.history : std::max(1000, 10 * p.period));
+  out.history_restore_points = longest_history;
+  return out;
+}
+
+}  // namespace plimsoll::stream

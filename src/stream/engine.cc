@@ -1,0 +1,502 @@
+#include "plimsoll/stream/engine.h"
+
+#include <cmath>
+#include <limits>
+#include <stdexcept>
+#include <string>
+#include <unordered_map>
+#include <utility>
+
+#include "plimsoll/base/bytes.h"
+#include "plimsoll/base/json_writer.h"
+#include "plimsoll/model/forecast.h"
+#include "plimsoll/model/update.h"
+#include "plimsoll/stream/config.h"
+#include "stream/alert_tracker.h"
+#include "stream/step_aligner.h"
+
+namespace plimsoll::stream {
+namespace {
+
+constexpr uint8_t kCheckpointVersion = 1;
+constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+
+struct TransparentHash {
+  using is_transparent = void;
+  size_t operator()(std::string_view s) const noexcept { return std::hash<std::string_view>{}(s); }
+};
+
+// Profile rules plus what the engine derives from them once.
+struct ResolvedRules {
+  SeriesRules rules;
+  AlertRule alert;
+  double z;  // band half-width in standard deviations
+};
+
+struct SeriesRuntime {
+  std::string name;
+  uint32_t rules_index = 0;
+  bool warming_up = true;
+  bool additive_only = false;  // a non-positive value met a multiplicative form
+  bool dirty = false;
+  StepAligner aligner;
+  AlertTracker alerts;
+  model::ModelSpec spec;
+  model::Params params;
+  model::UpdateFn update = nullptr;
+  double sigma = 0.0;
+  model::State state;
+  int64_t last_time_ms = 0;
+  int64_t next_fit_at = 0;             // warm-up observations needed before the next fit attempt
+  std::vector<double> warmup_values;   // warm-up history, NaN for gaps; empty once fitted
+};
+
+int64_t CountObserved(std::span<const double> values) {
+  int64_t n = 0;
+  for (double v : values) n += std::isnan(v) ? 0 : 1;
+  return n;
+}
+
+std::string ModelDetail(const ModelChoice& choice, size_t points) {
+  JsonWriter w;
+  w.BeginObject().Field("form", choice.spec.Notation()).Field("period", choice.spec.period);
+  w.Key("params").BeginObject().Field("alpha", choice.params.alpha);
+  if (choice.spec.has_trend()) w.Field("beta", choice.params.beta);
+  if (choice.spec.has_season()) w.Field("gamma", choice.params.gamma);
+  if (choice.spec.damped()) w.Field("phi", choice.params.phi);
+  w.EndObject();
+  w.Field("sigma2", choice.initial.sigma2).Field("loglik", choice.loglik).Field("aicc", choice.aicc);
+  w.Field("points", static_cast<int64_t>(points));
+  if (!choice.note.empty()) w.Field("note", choice.note);
+  w.EndObject();
+  return w.Take();
+}
+
+}  // namespace
+
+struct Engine::Impl {
+  Impl(const EngineOptions& options, ModelChooser choose, Clock* clk, EngineCounters& ctr)
+      : opts(options), chooser(std::move(choose)), clock(clk), counters(ctr) {}
+
+  const EngineOptions& opts;
+  ModelChooser chooser;
+  Clock* clock;
+  EngineCounters& counters;
+  std::vector<ResolvedRules> rules;
+  std::vector<SeriesRuntime> series;
+  std::unordered_map<std::string, SeriesId, TransparentHash, std::equal_to<>> index;
+  EngineBatch batch;
+  std::vector<SeriesId> refit_requests;
+
+  // Context of the record being applied, for dead letters raised while applying it.
+  std::string_view raw;
+  int32_t stream_index = -1;
+  int64_t offset = -1;
+  int64_t record_time_ms = 0;
+
+  void DeadLetter(std::string reason, StatusCode code) {
+    ++counters.dead_letters;
+    batch.dead_letters.push_back(plimsoll::stream::DeadLetter{
+        std::string(raw.substr(0, opts.dead_letter_bytes)), std::move(reason), code, stream_index, offset});
+  }
+
+  void MarkDirty(SeriesId id) {
+    SeriesRuntime& s = series[id];
+    if (!s.dirty) {
+      s.dirty = true;
+      batch.dirty.push_back(id);
+    }
+  }
+
+  std::optional<SeriesId> Create(std::string_view name) {
+    if (!opts.create_series) {
+      DeadLetter("unknown series '" + std::string(name) + "' (series creation is disabled)", StatusCode::kNotFound);
+      return std::nullopt;
+    }
+    if (series.size() >= opts.max_series) {
+      DeadLetter("series '" + std::string(name) + "' refused: limit of " + std::to_string(opts.max_series) +
+                     " series reached",
+                 StatusCode::kOutOfRange);
+      return std::nullopt;
+    }
+    for (uint32_t i = 0; i < rules.size(); ++i) {
+      if (!GlobMatch(rules[i].rules.match, name)) continue;
+      SeriesId id = static_cast<SeriesId>(series.size());
+      SeriesRuntime& s = series.emplace_back();
+      s.name = std::string(name);
+      s.rules_index = i;
+      s.next_fit_at = rules[i].rules.warmup;
+      index.emplace(s.name, id);
+      batch.events.push_back({id, 0, EventKind::kCreated, "{\"profile\":\"" + rules[i].rules.match + "\"}"});
+      MarkDirty(id);
+      return id;
+    }
+    DeadLetter("no profile matches series '" + std::string(name) + "'", StatusCode::kNotFound);
+    return std::nullopt;
+  }
+
+  int64_t StepTime(const SeriesRules& r, int64_t step) const {
+    return r.interval_ms > 0 ? step * r.interval_ms : record_time_ms;
+  }
+
+  void Install(SeriesId id, const ModelChoice& choice) {
+    SeriesRuntime& s = series[id];
+    s.spec = choice.spec;
+    s.params = choice.params;
+    s.update = model::SelectUpdate(choice.spec);
+    s.state = choice.initial;
+    s.sigma = std::sqrt(choice.initial.sigma2);
+    s.warming_up = false;
+  }
+
+  void TryFit(SeriesId id, int64_t step) {
+    SeriesRuntime& s = series[id];
+    const SeriesRules& r = rules[s.rules_index].rules;
+    ++counters.fits;
+    Result<ModelChoice> choice = chooser(s.warmup_values, r, s.additive_only);
+    if (!choice.ok()) {
+      ++counters.fit_failures;
+      JsonWriter w;
+      w.BeginObject().Field("reason", choice.status().ToString()).EndObject();
+      batch.events.push_back({id, step, EventKind::kFitFailed, w.Take()});
+      s.next_fit_at = CountObserved(s.warmup_values) + std::max(1, r.warmup / 2);
+      // Keep at most `history` points while waiting for a fit that works.
+      if (s.warmup_values.size() > static_cast<size_t>(r.history)) {
+        s.warmup_values.erase(s.warmup_values.begin(),
+                              s.warmup_values.end() - static_cast<std::ptrdiff_t>(r.history));
+      }
+      return;
+    }
+    Install(id, *choice);
+    // Replay the warm-up history through the same kernel the live path uses.
+    for (double v : s.warmup_values) s.update(s.params, s.state, v);
+    batch.events.push_back({id, step, EventKind::kModelChosen, ModelDetail(*choice, s.warmup_values.size())});
+    batch.models.push_back({id, step, *choice, "warmup"});
+    s.warmup_values = std::vector<double>();
+  }
+
+  void Reseed(SeriesId id, int64_t step) {
+    SeriesRuntime& s = series[id];
+    ++counters.reseeds;
+    s.warming_up = true;
+    s.update = nullptr;
+    s.state = model::State();
+    s.alerts.Reset();
+    s.warmup_values.clear();
+    s.next_fit_at = rules[s.rules_index].rules.warmup;
+    batch.events.push_back({id, step, EventKind::kReseeded, "{\"reason\":\"silence longer than max_gap\"}"});
+  }
+
+  void ApplyActive(SeriesId id, const AlignedStep& step) {
+    SeriesRuntime& s = series[id];
+    const ResolvedRules& rr = rules[s.rules_index];
+    if (step.kind == StepKind::kGap) {
+      s.update(s.params, s.state, kNaN);
+      return;
+    }
+    const double mu = model::PointForecast(s.spec, s.params, s.state, 1);
+    if (!std::isfinite(mu) || (s.spec.needs_positive_data() && mu <= 0.0)) {
+      // The model has left the region where it means anything: start over from this point.
+      Reseed(id, step.step);
+      ApplyWarmup(id, step);
+      return;
+    }
+    const model::Band band = model::OneStepBand(s.spec, mu, s.sigma * s.sigma, rr.z);
+    const double y = step.value;
+    const bool flagged = y < band.lower || y > band.upper;
+    double y_state = y;
+    if (flagged && rr.rules.policy == FlagPolicy::kClip) y_state = y < band.lower ? band.lower : band.upper;
+    if (flagged && rr.rules.policy == FlagPolicy::kSkip) y_state = kNaN;
+    const model::StepResult result = s.update(s.params, s.state, y_state);
+    const int64_t time_ms = StepTime(rr.rules, step.step);
+    if (flagged) {
+      ++counters.flags;
+      const double innovation = s.spec.error == model::ErrorType::kMultiplicative ? (y - mu) / mu : y - mu;
+      batch.flags.push_back(FlagRecord{id, step.step, time_ms, y, result.mu, band.lower, band.upper,
+                                       rr.rules.band_level, s.sigma > 0 ? innovation / s.sigma : 0.0, s.spec});
+    }
+    switch (s.alerts.Observe(flagged, rr.alert)) {
+      case AlertTransition::kRaised:
+        ++counters.alerts_raised;
+        batch.alerts.push_back({id, step.step, time_ms, AlertKind::kRaised});
+        break;
+      case AlertTransition::kCleared:
+        ++counters.alerts_cleared;
+        batch.alerts.push_back({id, step.step, time_ms, AlertKind::kCleared});
+        break;
+      case AlertTransition::kNone: break;
+    }
+  }
+
+  void ApplyWarmup(SeriesId id, const AlignedStep& step) {
+    SeriesRuntime& s = series[id];
+    s.warmup_values.push_back(step.value);
+    if (step.kind == StepKind::kValue && CountObserved(s.warmup_values) >= s.next_fit_at) TryFit(id, step.step);
+  }
+
+  void Apply(SeriesId id, const AlignedStep& step) {
+    SeriesRuntime& s = series[id];
+    ++counters.steps;
+    if (step.kind == StepKind::kReseed) {
+      --counters.steps;
+      Reseed(id, step.step);
+      return;
+    }
+    batch.history.push_back({id, step.step, step.value});
+    if (s.warming_up) ApplyWarmup(id, step);
+    else ApplyActive(id, step);
+  }
+
+  void Observe(SeriesId id, int64_t time_ms, double value) {
+    SeriesRuntime& s = series[id];
+    const ResolvedRules& rr = rules[s.rules_index];
+    if (!s.warming_up && s.spec.needs_positive_data() && value <= 0.0) {
+      DeadLetter("value " + FormatJsonNumber(value) + " <= 0 for series '" + s.name + "' with multiplicative form " +
+                     s.spec.Notation() + "; series queued for an additive refit",
+                 StatusCode::kOutOfRange);
+      if (!s.additive_only) {
+        s.additive_only = true;
+        batch.events.push_back({id, s.aligner.last_step(), EventKind::kRefitQueued, "{\"reason\":\"non-positive value\"}"});
+        refit_requests.push_back(id);
+        MarkDirty(id);
+      }
+      return;
+    }
+    record_time_ms = time_ms;
+    const AlignOutcome outcome =
+        s.aligner.Offer(rr.rules, time_ms, value, [&](const AlignedStep& step) { Apply(id, step); });
+    switch (outcome) {
+      case AlignOutcome::kAccepted:
+        ++counters.observations;
+        ++batch.observations;
+        s.last_time_ms = time_ms;
+        MarkDirty(id);
+        break;
+      case AlignOutcome::kLate:
+        DeadLetter("late: time " + std::to_string(time_ms) + " of series '" + s.name + "' falls in step " +
+                       std::to_string(time_ms / std::max<int64_t>(1, rr.rules.interval_ms)) +
+                       ", which is already closed (last step " + std::to_string(s.aligner.last_step()) + ")",
+                   StatusCode::kOutOfRange);
+        break;
+      case AlignOutcome::kDuplicate:
+        DeadLetter("duplicate: series '" + s.name + "' already has a value for step " +
+                       std::to_string(s.aligner.last_step()),
+                   StatusCode::kOutOfRange);
+        break;
+    }
+  }
+};
+
+Engine::Engine(EngineOptions options, ModelChooser chooser, Clock* clock) : options_(std::move(options)) {
+  if (!chooser) throw std::invalid_argument("engine needs a model chooser");
+  if (clock == nullptr) throw std::invalid_argument("engine needs a clock");
+  impl_ = std::make_unique<Impl>(options_, std::move(chooser), clock, counters_);
+  for (size_t i = 0; i < options_.profiles.size(); ++i) {
+    const SeriesRules& r = options_.profiles[i];
+    const std::string where = "profile[" + std::to_string(i) + "] ('" + r.match + "')";
+    if (!(r.band_level > 0.0 && r.band_level < 1.0))
+      throw std::invalid_argument(where + ": band level must be in (0, 1)");
+    if (Status glob = ValidateGlob(r.match); !glob.ok()) throw std::invalid_argument(where + ": " + glob.message());
+    if (r.breach_run < 1 || r.breach_window < r.breach_run || r.breach_window > 64)
+      throw std::invalid_argument(where + ": need 1 <= breach_run <= breach_window <= 64");
+    if (r.clear_run < 1) throw std::invalid_argument(where + ": clear_run must be >= 1");
+    if (r.period < 1) throw std::invalid_argument(where + ": period must be >= 1");
+    if (r.warmup < 2) throw std::invalid_argument(where + ": warmup must be >= 2");
+    if (r.interval_ms < 0) throw std::invalid_argument(where + ": interval must not be negative");
+    if (r.history < r.warmup) throw std::invalid_argument(where + ": history must be >= warmup");
+    impl_->rules.push_back(ResolvedRules{
+        r, AlertRule{r.breach_run, r.breach_window, r.clear_run}, model::TwoSidedZ(100.0 * r.band_level)});
+  }
+}
+
+Engine::~Engine() = default;
+
+void Engine::Observe(std::string_view series, int64_t time_ms, double value, std::string_view raw,
+                     int32_t stream_index, int64_t offset) {
+  Impl& im = *impl_;
+  im.raw = raw;
+  im.stream_index = stream_index;
+  im.offset = offset;
+  if (!std::isfinite(value)) {
+    im.DeadLetter("value of series '" + std::string(series) + "' is not a finite number", StatusCode::kInvalidArgument);
+    return;
+  }
+  auto it = im.index.find(series);
+  std::optional<SeriesId> id;
+  if (it != im.index.end()) id = it->second;
+  else id = im.Create(series);
+  if (id) im.Observe(*id, time_ms, value);
+}
+
+void Engine::RejectRecord(std::string_view raw, const Status& why, int32_t stream_index, int64_t offset) {
+  impl_->raw = raw;
+  impl_->stream_index = stream_index;
+  impl_->offset = offset;
+  impl_->DeadLetter(why.message(), why.code());
+}
+
+void Engine::AdvanceClock(int64_t now_ms) {
+  Impl& im = *impl_;
+  im.raw = {};
+  im.stream_index = -1;
+  im.offset = -1;
+  for (SeriesId id = 0; id < im.series.size(); ++id) {
+    SeriesRuntime& s = im.series[id];
+    const SeriesRules& r = im.rules[s.rules_index].rules;
+    if (r.aggregate == AggregateKind::kNone || r.interval_ms <= 0) continue;
+    const int64_t before = s.aligner.last_step();
+    im.record_time_ms = now_ms;
+    s.aligner.AdvanceClock(r, now_ms, [&](const AlignedStep& step) { im.Apply(id, step); });
+    if (s.aligner.last_step() != before) im.MarkDirty(id);
+  }
+}
+
+EngineBatch Engine::TakeBatch() {
+  EngineBatch out = std::move(impl_->batch);
+  impl_->batch = EngineBatch();
+  for (SeriesId id : out.dirty) impl_->series[id].dirty = false;
+  return out;
+}
+
+std::vector<SeriesId> Engine::TakeRefitRequests() { return std::exchange(impl_->refit_requests, {}); }
+
+Status Engine::InstallModel(SeriesId id, const ModelChoice& choice, std::span<const double> history,
+                            std::string_view reason) {
+  Impl& im = *impl_;
+  SeriesRuntime& s = im.series[id];
+  if (s.warming_up) return Status::InvalidArgument("series '" + s.name + "' is still warming up");
+  model::State replayed = choice.initial;
+  const model::UpdateFn update = model::SelectUpdate(choice.spec);
+  for (double v : history) {
+    const model::StepResult r = update(choice.params, replayed, v);
+    if (!std::isfinite(r.mu))
+      return Status::NumericFailure("replay of series '" + s.name + "' under " + choice.spec.Notation() +
+                                    " produced a non-finite forecast");
+  }
+  im.Install(id, choice);
+  s.state = std::move(replayed);
+  im.batch.events.push_back({id, s.aligner.last_step(), EventKind::kModelChosen, ModelDetail(choice, history.size())});
+  im.batch.models.push_back({id, s.aligner.last_step(), choice, std::string(reason)});
+  im.MarkDirty(id);
+  return Status::Ok();
+}
+
+Status Engine::Refit(SeriesId id, std::span<const double> history, std::string_view reason) {
+  Impl& im = *impl_;
+  SeriesRuntime& s = im.series[id];
+  ++counters_.fits;
+  Result<ModelChoice> choice = im.chooser(history, im.rules[s.rules_index].rules, s.additive_only);
+  if (!choice.ok()) {
+    ++counters_.fit_failures;
+    return choice.status().WithContext("refit of series '" + s.name + "'");
+  }
+  return InstallModel(id, *choice, history, reason);
+}
+
+std::string Engine::EncodeCheckpoint(SeriesId id) const {
+  const SeriesRuntime& s = impl_->series[id];
+  ByteWriter w;
+  w.Put<uint8_t>(kCheckpointVersion);
+  w.Put<uint8_t>(s.warming_up ? 1 : 0);
+  w.Put<uint8_t>(s.additive_only ? 1 : 0);
+  w.Put<uint8_t>(static_cast<uint8_t>(s.spec.error));
+  w.Put<uint8_t>(static_cast<uint8_t>(s.spec.trend));
+  w.Put<uint8_t>(static_cast<uint8_t>(s.spec.season));
+  w.Put<int32_t>(s.spec.period);
+  w.Put(s.params.alpha);
+  w.Put(s.params.beta);
+  w.Put(s.params.gamma);
+  w.Put(s.params.phi);
+  w.Put(s.last_time_ms);
+  w.Put(s.next_fit_at);
+  w.Put<uint32_t>(static_cast<uint32_t>(s.warmup_values.size()));
+  w.PutBytes(s.aligner.Encode());
+  w.PutBytes(s.alerts.Encode());
+  w.PutBytes(s.warming_up ? std::string() : model::EncodeState(s.state));
+  return w.Take();
+}
+
+Status Engine::RestoreSeries(std::string_view name, std::string_view checkpoint,
+                             const HistoryFetcher& warmup_history) {
+  Impl& im = *impl_;
+  im.raw = {};
+  auto existing = im.index.find(name);
+  std::optional<SeriesId> id = existing != im.index.end() ? std::optional<SeriesId>(existing->second) : im.Create(name);
+  if (!id) return Status::NotFound("no profile matches stored series '" + std::string(name) + "'");
+  // Creation during restore is not new work to commit.
+  im.batch = EngineBatch();
+  SeriesRuntime& s = im.series[*id];
+  ByteReader r(checkpoint);
+  uint8_t version = 0, warming = 0, additive = 0, error = 0, trend = 0, season = 0;
+  int32_t period = 1;
+  uint32_t warmup_len = 0;
+  std::string_view aligner_bytes, alert_bytes, state_bytes;
+  const bool read = r.Get(version) && r.Get(warming) && r.Get(additive) && r.Get(error) && r.Get(trend) &&
+                    r.Get(season) && r.Get(period) && r.Get(s.params.alpha) && r.Get(s.params.beta) &&
+                    r.Get(s.params.gamma) && r.Get(s.params.phi) && r.Get(s.last_time_ms) && r.Get(s.next_fit_at) &&
+                    r.Get(warmup_len) && r.GetBytes(aligner_bytes) && r.GetBytes(alert_bytes) && r.GetBytes(state_bytes);
+  const std::string where = "checkpoint of series '" + std::string(name) + "'";
+  if (!read || version != kCheckpointVersion || error > 1 || trend > 4 || season > 2)
+    return Status::Corruption(where + " is truncated or of an unknown version");
+  if (!s.aligner.Decode(aligner_bytes) || !s.alerts.Decode(alert_bytes))
+    return Status::Corruption(where + ": bad alignment or alert section");
+  s.warming_up = warming != 0;
+  s.additive_only = additive != 0;
+  s.spec = model::ModelSpec{static_cast<model::ErrorType>(error), static_cast<model::TrendType>(trend),
+                            static_cast<model::SeasonType>(season), period};
+  if (s.warming_up) {
+    if (warmup_len == 0) return Status::Ok();
+    Result<std::vector<double>> history = warmup_history();
+    if (!history.ok()) return history.status().WithContext(where);
+    if (history->size() < warmup_len)
+      return Status::Corruption(where + " needs " + std::to_string(warmup_len) + " warm-up points but history has " +
+                                std::to_string(history->size()));
+    s.warmup_values.assign(history->end() - warmup_len, history->end());
+    return Status::Ok();
+  }
+  Result<model::State> state = model::DecodeState(state_bytes);
+  if (!state.ok()) return state.status().WithContext(where);
+  s.state = std::move(state).value();
+  s.update = model::SelectUpdate(s.spec);
+  s.sigma = std::sqrt(s.state.sigma2);
+  return Status::Ok();
+}
+
+const std::string& Engine::SeriesName(SeriesId id) const { return impl_->series[id].name; }
+
+Engine::Position Engine::SeriesPosition(SeriesId id) const {
+  const SeriesRuntime& s = impl_->series[id];
+  return Position{s.aligner.last_step(), s.last_time_ms};
+}
+
+std::optional<SeriesId> Engine::FindSeries(std::string_view name) const {
+  auto it = impl_->index.find(name);
+  if (it == impl_->index.end()) return std::nullopt;
+  return it->second;
+}
+
+size_t Engine::series_count() const { return impl_->series.size(); }
+
+SeriesView Engine::View(SeriesId id) const {
+  const SeriesRuntime& s = impl_->series[id];
+  SeriesView v{id, s.name, impl_->rules[s.rules_index].rules.match, s.warming_up, s.aligner.last_step(),
+               std::nullopt, s.params, s.state, s.alerts.active()};
+  if (!s.warming_up) v.form = s.spec;
+  return v;
+}
+
+size_t Engine::ResidentBytes() const {
+  const Impl& im = *impl_;
+  size_t bytes = im.series.capacity() * sizeof(SeriesRuntime);
+  for (const SeriesRuntime& s : im.series) {
+    bytes += s.name.capacity() > 15 ? s.name.capacity() + 1 : 0;  // beyond the small-string buffer
+    bytes += s.state.season.capacity() * sizeof(double);
+    bytes += s.warmup_values.capacity() * sizeof(double);
+  }
+  // Index: one node (key string + id + next pointer + cached hash) per series, plus buckets.
+  bytes += im.index.size() * (sizeof(std::string) + sizeof(SeriesId) + 2 * sizeof(void*));
+  bytes += im.index.bucket_count() * sizeof(void*);
+  return bytes;
+}
+
+}  // namespace plimsoll::stream
