@@ -1,0 +1,162 @@
+// "select": full automatic model selection over the default candidates on a simulated series,
+// against python3-statsmodels (Debian 12, ETSModel) fitting single forms on the same data in the
+// same run, plus the likelihood inner loop's evaluation rate.
+#include <unistd.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "bench/bench.h"
+#include "plimsoll/fit/fit.h"
+#include "plimsoll/model/likelihood.h"
+#include "plimsoll/model/simulate.h"
+#include "plimsoll/model/spec.h"
+
+namespace plimsoll::bench {
+namespace {
+
+// Times ETSModel(...).fit() only (data loaded and the module imported before the clock starts);
+// prints "<form> <ms> <llf>" per form.
+constexpr const char* kReferenceScript = R"PY(
+import sys, time, warnings
+import numpy as np
+from statsmodels.tsa.exponential_smoothing.ets import ETSModel
+y = np.loadtxt(sys.argv[1]); m = int(sys.argv[2])
+for form in sys.argv[3:]:
+    e, t, s = form[4:-1].split(",")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        t0 = time.perf_counter()
+        res = ETSModel(y, error="add" if e == "A" else "mul", trend=None if t == "N" else "add",
+                       damped_trend=(t == "Ad"), seasonal=None if s == "N" else ("add" if s == "A" else "mul"),
+                       seasonal_periods=m).fit(disp=False)
+        ms = (time.perf_counter() - t0) * 1e3
+    print(form, repr(ms), repr(float(res.llf)))
+)PY";
+
+double Millis(std::chrono::steady_clock::duration d) { return std::chrono::duration<double, std::milli>(d).count(); }
+
+BenchReport RunSelectBench(const BenchArgs& args) {
+  using Clock = std::chrono::steady_clock;
+  const int n = args.quick ? 240 : 1000;
+  const int m = args.quick ? 12 : 24;
+  // True model ETS(A,Ad,A), positive data so every default candidate is fitted.
+  const model::ModelSpec truth{model::ErrorType::kAdditive, model::TrendType::kAdditiveDamped,
+                               model::SeasonType::kAdditive, m};
+  std::vector<double> season;
+  for (int j = 0; j < m; ++j) season.push_back(60 * std::sin(2 * 3.14159265358979 * j / m));
+  const std::vector<double> y = model::SimulateSeries(truth, model::Params{0.35, 0.02, 0.08, 0.95},
+                                                      model::MakeState(500, 0.4, season), 25.0, n, 20261202);
+  fit::FitOptions options;
+  options.period = m;
+
+  BenchReport report;
+  // Full selection: median of 3 runs (results are deterministic; only the time varies).
+  std::vector<double> select_ms;
+  int evaluations = 0;
+  size_t fitted = 0;
+  std::string chosen;
+  for (int rep = 0; rep < 3; ++rep) {
+    const auto t0 = Clock::now();
+    auto sel = fit::SelectModel(y, options);
+    select_ms.push_back(Millis(Clock::now() - t0));
+    if (!sel.ok()) {
+      report.notes.push_back("selection failed: " + sel.status().ToString());
+      return report;
+    }
+    evaluations = 0;
+    fitted = 0;
+    for (const auto& c : sel->candidates) {
+      if (c.fit) evaluations += c.fit->evaluations, ++fitted;
+    }
+    chosen = sel->best().spec.Notation();
+  }
+  std::sort(select_ms.begin(), select_ms.end());
+  report.Add("n", static_cast<int64_t>(n));
+  report.Add("period", static_cast<int64_t>(m));
+  report.Add("select_ms", select_ms[1]);
+  report.Add("select_forms_fitted", static_cast<int64_t>(fitted));
+  report.Add("select_evaluations", static_cast<int64_t>(evaluations));
+  report.Add("chosen", chosen);
+
+  // Inner loop: likelihood evaluations of ETS(A,Ad,A) at the true parameters.
+  {
+    const auto state = model::MakeState(500, 0.4, season);
+    const model::Params p{0.35, 0.02, 0.08, 0.95};
+    const int reps = args.quick ? 200 : 2000;
+    double sink = 0;
+    const auto t0 = Clock::now();
+    for (int i = 0; i < reps; ++i) {
+      auto r = model::EvaluateLikelihood(truth, p, state, y);
+      if (r.ok()) sink += r->loglik;
+    }
+    const double secs = std::chrono::duration<double>(Clock::now() - t0).count();
+    KeepAlive(sink);
+    report.Add("loglik_evals_per_s", reps / secs);
+  }
+
+  // Per form: ours vs the reference on the same data, in this run.
+  const std::vector<std::string> forms = {"ETS(A,Ad,A)", "ETS(M,Ad,A)"};
+  std::vector<std::pair<double, double>> ours;  // ms, loglik
+  for (const std::string& text : forms) {
+    auto spec = model::ParseModelSpec(text, m);
+    const auto t0 = Clock::now();
+    auto fit = fit::FitModel(*spec, y, options);
+    ours.emplace_back(Millis(Clock::now() - t0), fit.ok() ? fit->loglik : std::nan(""));
+  }
+  char dir_template[] = "/tmp/plimsoll-select-bench-XXXXXX";
+  const char* dir = mkdtemp(dir_template);
+  std::vector<std::pair<double, double>> theirs(forms.size(), {std::nan(""), std::nan("")});
+  if (dir != nullptr) {
+    const std::string data = std::string(dir) + "/y.txt", script = std::string(dir) + "/ref.py";
+    {
+      std::ofstream out(data);
+      out.precision(17);
+      for (double v : y) out << v << "\n";
+      std::ofstream(script) << kReferenceScript;
+    }
+    std::string command = "/usr/bin/python3 " + script + " " + data + " " + std::to_string(m);
+    for (const std::string& f : forms) command += " '" + f + "'";
+    command += " 2>/dev/null";
+    if (FILE* pipe = popen(command.c_str(), "r")) {
+      char line[512];
+      while (fgets(line, sizeof(line), pipe)) {
+        std::istringstream in(line);
+        std::string form;
+        double ms = 0, llf = 0;
+        if (!(in >> form >> ms >> llf)) continue;
+        for (size_t i = 0; i < forms.size(); ++i) {
+          if (forms[i] == form) theirs[i] = {ms, llf};
+        }
+      }
+      if (pclose(pipe) != 0) report.notes.push_back("reference script failed (statsmodels not importable?)");
+    }
+    std::remove(data.c_str());
+    std::remove(script.c_str());
+    rmdir(dir);
+  }
+  report.rows_key = "per_form";
+  for (size_t i = 0; i < forms.size(); ++i) {
+    report.rows.push_back({{"form", forms[i]},
+                           {"ours_ms", ours[i].first},
+                           {"reference_ms", theirs[i].first},
+                           {"ratio", theirs[i].first / ours[i].first},
+                           {"ours_loglik", ours[i].second},
+                           {"reference_loglik", theirs[i].second}});
+  }
+  report.notes.push_back("reference: python3-statsmodels ETSModel(...).fit(), default settings, fit call only");
+  return report;
+}
+
+PLIMSOLL_BENCH("select", "automatic ETS selection (n=1000, m=24) vs statsmodels single-form fits",
+               RunSelectBench);
+
+}  // namespace
+}  // namespace plimsoll::bench
