@@ -73,7 +73,9 @@ struct Kernel {
   // Applies the correction for absolute error e (0 for a gap step).
   static inline void Correct(const Params& p, State& st, const Prediction& q, double e) {
     double scaled = e;
-    if constexpr (S == SeasonType::kMultiplicative) scaled = e / q.s;
+    // 1/s does not depend on this step's error, so the division runs off the level's
+    // dependency chain (one multiply on it instead of a divide).
+    if constexpr (S == SeasonType::kMultiplicative) scaled = e * (1.0 / q.s);
     const double l_prev = st.level;
     st.level = q.lp + p.alpha * scaled;
     if constexpr (T == TrendType::kAdditive || T == TrendType::kAdditiveDamped) {
