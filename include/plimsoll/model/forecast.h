@@ -49,7 +49,12 @@ struct ForecastResult {
   std::vector<ForecastStep> steps;
 };
 
-// Fails with InvalidArgument for a bad horizon, level or sigma2 < 0.
+// Uses state.sigma2 as the innovation variance. Analytic forms: mean = point forecast,
+// intervals mean +/- z sqrt(v_h) (for class 2 this is the usual normal approximation).
+// Simulated forms: mean and variance of the paths, interval ends are linear-interpolation
+// quantiles of the sorted paths. Fails with InvalidArgument for a bad horizon (1..100000),
+// level, paths (2..1e7, only checked when simulating), sigma2 < 0 or a state whose season length
+// is not the spec's period.
 Result<ForecastResult> Forecast(const ModelSpec& spec, const Params& params, const State& state,
                                 const ForecastOptions& options);
 

@@ -34,7 +34,10 @@ struct LikelihoodTrace {
 };
 
 // Fails with NumericFailure naming the step when mu is non-finite, or <= 0 for a form that
-// needs positive data; InvalidArgument when there are no observations.
+// needs positive data (M error: also |mu| outside [1e-300, 1e300], which keeps the log|mu| sum
+// exact without a log per step), and when every innovation is zero (sigma^2 = 0);
+// InvalidArgument when there are no observations or the initial state's season length is not
+// the spec's period. On success final_state.sigma2 is the maximum-likelihood sigma^2.
 Result<LikelihoodResult> EvaluateLikelihood(const ModelSpec& spec, const Params& params, const State& initial,
                                             std::span<const double> y, LikelihoodTrace trace = {});
 

@@ -54,6 +54,8 @@ struct ModelSpec {
 // Parses "ETS(M,Ad,M)", "MAdM", "M,Ad,M" (case-insensitive) with the given period, or
 // spelled-out words via ParseSpelledModelSpec. Fails naming the offending part, e.g.
 // "trend 'X' is not one of N, A, Ad, M, Md". REQUIRES nothing; validates period (>= 2 with a season).
+// A non-seasonal form gets period 1 whatever `period` (>= 1) says, so one profile period can
+// serve every candidate form.
 Result<ModelSpec> ParseModelSpec(std::string_view text, int period);
 
 // Spelled-out form: error "additive"|"multiplicative", trend "none"|"additive"|"additive_damped"|
