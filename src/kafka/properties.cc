@@ -23,6 +23,7 @@ Properties ProducerDefaults() {
       {"enable.idempotence", "true"},
       {"compression.type", "zstd"},
       {"linger.ms", "5"},
+      {"partitioner", "murmur2_random"},
       {"message.timeout.ms", "30000"},
       {"queue.buffering.max.messages", "100000"},
       {"client.id", "plimsoll-sink"},

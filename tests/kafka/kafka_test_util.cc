@@ -94,7 +94,8 @@ Properties FastGroupProperties() {
   return {{"session.timeout.ms", "6000"}, {"heartbeat.interval.ms", "1000"}, {"auto.offset.reset", "error"}};
 }
 
-Result<std::vector<OwnedRecord>> Drain(stream::RecordSource& source, size_t count, int timeout_ms, int settle_ms) {
+Result<std::vector<OwnedRecord>> Drain(stream::RecordSource& source, size_t count, int timeout_ms, int settle_ms,
+                                       PositionMap* positions) {
   std::vector<OwnedRecord> all;
   std::vector<stream::RawRecord> batch;
   auto start = std::chrono::steady_clock::now();
@@ -114,6 +115,7 @@ Result<std::vector<OwnedRecord>> Drain(stream::RecordSource& source, size_t coun
     for (const stream::RawRecord& r : batch) {
       all.push_back(OwnedRecord{std::string(r.key), std::string(r.payload), streams[r.stream_index].name,
                                 streams[r.stream_index].partition, r.offset, r.next_offset, r.timestamp_ms});
+      if (positions != nullptr) (*positions)[{streams[r.stream_index].name, streams[r.stream_index].partition}] = r.next_offset;
     }
   }
   return all;
@@ -123,6 +125,14 @@ stream::PositionLookup MapLookup(std::map<std::pair<std::string, int32_t>, int64
   return [positions = std::move(positions)](const stream::StreamId& id) -> std::optional<int64_t> {
     auto it = positions.find({id.name, id.partition});
     if (it == positions.end()) return std::nullopt;
+    return it->second;
+  };
+}
+
+stream::PositionLookup LiveLookup(const PositionMap* positions) {
+  return [positions](const stream::StreamId& id) -> std::optional<int64_t> {
+    auto it = positions->find({id.name, id.partition});
+    if (it == positions->end()) return std::nullopt;
     return it->second;
   };
 }

@@ -47,9 +47,17 @@ struct OwnedRecord {
   int64_t timestamp_ms = -1;
 };
 
+// Stored positions as the engine would keep them: (stream name, partition) -> next offset.
+using PositionMap = std::map<std::pair<std::string, int32_t>, int64_t>;
+
 // Polls until `count` records arrived or `timeout_ms` passed; then polls `settle_ms` more to
-// catch anything extra. Returns every record seen (copies); fails on a non-OK Poll.
-Result<std::vector<OwnedRecord>> Drain(stream::RecordSource& source, size_t count, int timeout_ms, int settle_ms = 500);
+// catch anything extra. Returns every record seen (copies); fails on a non-OK Poll. When
+// `positions` is given, each received record advances it (an engine that commits at once).
+Result<std::vector<OwnedRecord>> Drain(stream::RecordSource& source, size_t count, int timeout_ms, int settle_ms = 500,
+                                       PositionMap* positions = nullptr);
+
+// A PositionLookup reading a live map (which must outlive the lookup).
+stream::PositionLookup LiveLookup(const PositionMap* positions);
 
 // A PositionLookup over a fixed map keyed by (stream name, partition).
 stream::PositionLookup MapLookup(std::map<std::pair<std::string, int32_t>, int64_t> positions);

@@ -27,7 +27,8 @@ using Properties = std::map<std::string, std::string, std::less<>>;
 Properties ConsumerDefaults();
 
 // Our producer defaults: enable.idempotence=true (acks=all, ordered, no duplicates from
-// retries), compression.type=zstd, linger.ms=5, message.timeout.ms=30000,
+// retries), compression.type=zstd, linger.ms=5, partitioner=murmur2_random (same partition
+// for a key as the Java clients), message.timeout.ms=30000,
 // queue.buffering.max.messages=100000, client.id=plimsoll-sink, log.connection.close=false.
 Properties ProducerDefaults();
 
