@@ -7,6 +7,11 @@
 //                              position), synchronous NORMAL
 //   commit_states_per_s_full   the same with synchronous FULL
 //   full_over_normal           ratio of the two
+//   commit_states_per_cpu_s    mixed-commit states per CPU second of this process (NORMAL), a
+//                              figure less sensitive to other load on a shared machine
+//   states_only_per_s          states per second in states-only commits (NORMAL)
+//   raw_sqlite_upserts_per_s   bare sqlite3 upserts of the same rows in the same run (NORMAL)
+//   store_over_raw             states_only_per_s / raw_sqlite_upserts_per_s: the store's overhead
 //   history_points_per_s       history points appended per second, history-only commits, NORMAL
 //   compact_points_per_s       history log points moved into per-series chunks per second
 //   load_series_per_s          series (with model-less 256-byte states) read back at start-up
@@ -22,6 +27,11 @@
 #include <filesystem>
 #include <random>
 #include <string>
+#include <vector>
+
+#include <sqlite3.h>
+
+#include <ctime>
 
 #include "bench/bench.h"
 #include "plimsoll/store/store.h"
@@ -79,8 +89,56 @@ void Check(const Status& status) {
 }
 
 struct LevelFigures {
-  double states_per_s = 0, history_per_s = 0, compact_per_s = 0, load_per_s = 0, mean_ms = 0, max_ms = 0;
+  double states_per_s = 0, states_per_cpu_s = 0, states_only_per_s = 0, raw_per_s = 0, history_per_s = 0;
+  double compact_per_s = 0, load_per_s = 0, mean_ms = 0, max_ms = 0;
 };
+
+double CpuSeconds() { return static_cast<double>(std::clock()) / CLOCKS_PER_SEC; }
+
+// Baseline in the same run: bare sqlite3 upserts of the same rows (same table shape, pragmas,
+// one transaction per `dirty` rows), so store/raw is a ratio that other load on the machine
+// affects alike.
+double RawSqliteUpsertsPerSecond(Synchronous sync, int64_t series, int64_t dirty, int commits) {
+  BenchDir dir;
+  sqlite3* db = nullptr;
+  if (sqlite3_open(dir.File().c_str(), &db) != SQLITE_OK) throw std::runtime_error("raw sqlite open failed");
+  const std::string setup = "PRAGMA journal_mode = WAL; PRAGMA synchronous = " +
+                            std::string(store::SynchronousName(sync)) +
+                            "; PRAGMA cache_size = -65536; PRAGMA wal_autocheckpoint = 4000;"
+                            "CREATE TABLE state(series INTEGER PRIMARY KEY, step INTEGER NOT NULL, "
+                            "time_ms INTEGER NOT NULL, encoded BLOB NOT NULL);";
+  sqlite3_exec(db, setup.c_str(), nullptr, nullptr, nullptr);
+  sqlite3_stmt* stmt = nullptr;
+  sqlite3_prepare_v2(db,
+                     "INSERT INTO state(series, step, time_ms, encoded) VALUES (?1, ?2, ?3, ?4) ON CONFLICT(series) "
+                     "DO UPDATE SET step = excluded.step, time_ms = excluded.time_ms, encoded = excluded.encoded",
+                     -1, &stmt, nullptr);
+  std::mt19937_64 rng(7);
+  std::vector<std::string> blobs;
+  for (int64_t i = 0; i < dirty; ++i) blobs.push_back(Blob(rng));
+  auto upsert = [&](int64_t id, int64_t step, const std::string& blob) {
+    sqlite3_bind_int64(stmt, 1, id);
+    sqlite3_bind_int64(stmt, 2, step);
+    sqlite3_bind_int64(stmt, 3, step * 60'000);
+    sqlite3_bind_blob(stmt, 4, blob.data(), static_cast<int>(blob.size()), SQLITE_STATIC);
+    sqlite3_step(stmt);
+    sqlite3_reset(stmt);
+  };
+  sqlite3_exec(db, "BEGIN", nullptr, nullptr, nullptr);
+  for (int64_t i = 0; i < series; ++i) upsert(i, 0, blobs[static_cast<size_t>(i % dirty)]);
+  sqlite3_exec(db, "COMMIT", nullptr, nullptr, nullptr);
+  double total = 0;
+  for (int c = 0; c < commits; ++c) {
+    auto start = std::chrono::steady_clock::now();
+    sqlite3_exec(db, "BEGIN IMMEDIATE", nullptr, nullptr, nullptr);
+    for (int64_t j = 0; j < dirty; ++j) upsert((c * dirty + j) % series, c + 1, blobs[static_cast<size_t>(j)]);
+    if (sqlite3_exec(db, "COMMIT", nullptr, nullptr, nullptr) != SQLITE_OK) throw std::runtime_error("raw commit");
+    total += Seconds(std::chrono::steady_clock::now() - start);
+  }
+  sqlite3_finalize(stmt);
+  sqlite3_close(db);
+  return static_cast<double>(dirty * commits) / total;
+}
 
 LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commits, int64_t history_points,
                       BenchReport& report) {
@@ -101,6 +159,7 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
   // and the source position.
   LevelFigures f;
   double total = 0;
+  const double cpu_start = CpuSeconds();
   for (int c = 0; c < commits; ++c) {
     batch.Clear();
     for (int64_t j = 0; j < dirty; ++j) {
@@ -116,11 +175,39 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
     f.max_ms = std::max(f.max_ms, s * 1e3);
   }
   f.states_per_s = static_cast<double>(dirty * commits) / total;
+  // CPU time includes building the batches (outside the wall-clock timing), so this undercounts.
+  f.states_per_cpu_s = static_cast<double>(dirty * commits) / (CpuSeconds() - cpu_start);
   f.mean_ms = total / commits * 1e3;
   report.rows.push_back({{"synchronous", level}, {"workload", std::string("states+history+position")},
                          {"commits", int64_t{commits}}, {"records_per_commit", dirty * 2 + 1},
                          {"items", std::string("states")}, {"items_per_s", f.states_per_s}, {"commit_ms_mean", f.mean_ms},
                          {"commit_ms_max", f.max_ms}});
+
+  // States-only commits: the same shape as the raw SQLite baseline.
+  double states_total = 0, states_max_ms = 0;
+  for (int c = 0; c < commits; ++c) {
+    batch.Clear();
+    for (int64_t j = 0; j < dirty; ++j) {
+      const int64_t i = (c * dirty + j) % series;
+      batch.states.push_back({Name(i), commits + c + 1, 0, Blob(rng)});
+    }
+    auto start = std::chrono::steady_clock::now();
+    Check(store->Commit(batch));
+    const double s = Seconds(std::chrono::steady_clock::now() - start);
+    states_total += s;
+    states_max_ms = std::max(states_max_ms, s * 1e3);
+  }
+  f.states_only_per_s = static_cast<double>(dirty * commits) / states_total;
+  report.rows.push_back({{"synchronous", level}, {"workload", std::string("states only")},
+                         {"commits", int64_t{commits}}, {"records_per_commit", dirty},
+                         {"items", std::string("states")}, {"items_per_s", f.states_only_per_s},
+                         {"commit_ms_mean", states_total / commits * 1e3}, {"commit_ms_max", states_max_ms}});
+  f.raw_per_s = RawSqliteUpsertsPerSecond(sync, series, dirty, commits);
+  report.rows.push_back({{"synchronous", level}, {"workload", std::string("bare sqlite3 upserts")},
+                         {"commits", int64_t{commits}}, {"records_per_commit", dirty},
+                         {"items", std::string("states")}, {"items_per_s", f.raw_per_s},
+                         {"commit_ms_mean", static_cast<double>(dirty) / f.raw_per_s * 1e3},
+                         {"commit_ms_max", 0.0}});
 
   // History-only commits: one packed log row per commit.
   double history_total = 0, history_max_ms = 0;
@@ -175,6 +262,10 @@ BenchReport RunStoreBench(const BenchArgs& args) {
   report.Add("commit_states_per_s", normal.states_per_s);
   report.Add("commit_states_per_s_full", full.states_per_s);
   report.Add("full_over_normal", full.states_per_s / normal.states_per_s);
+  report.Add("commit_states_per_cpu_s", normal.states_per_cpu_s);
+  report.Add("states_only_per_s", normal.states_only_per_s);
+  report.Add("raw_sqlite_upserts_per_s", normal.raw_per_s);
+  report.Add("store_over_raw", normal.states_only_per_s / normal.raw_per_s);
   report.Add("history_points_per_s", normal.history_per_s);
   report.Add("history_points_per_s_full", full.history_per_s);
   report.Add("compact_points_per_s", normal.compact_per_s);

@@ -299,12 +299,14 @@ TEST_CASE("a write lock held by another connection is retried, counted, then rep
   patient.backoff_max_ms = 20;
   store.reset();
   store = OpenOrDie(patient);
+  Status released;  // Catch assertions are not thread-safe: check after join
   std::thread release([&] {
     std::this_thread::sleep_for(std::chrono::milliseconds(60));
-    REQUIRE((*other)->Exec("COMMIT").ok());
+    released = (*other)->Exec("COMMIT");
   });
   Status retried = store->Commit(batch);
   release.join();
+  REQUIRE(released.ok());
   INFO(retried.ToString());
   CHECK(retried.ok());
   CHECK(store->counters().busy_retries >= 1);
