@@ -395,6 +395,42 @@ TEST_CASE("history tail returns the last points across log and chunks, gaps as N
   CHECK(store->HistoryTail("nobody", 5).status().code() == StatusCode::kNotFound);
 }
 
+TEST_CASE("history keeps points across long gaps and late corrections after compaction", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.history_chunk_points = 16;
+  auto store = OpenOrDie(options);
+  CommitBatch b;
+  b.series = {{"g", "p", 0}};
+  for (int64_t step = 0; step < 20; ++step) b.history.push_back({"g", step, static_cast<double>(step)});
+  b.history.push_back({"g", 1000, 1000.0});  // a gap far longer than one chunk
+  REQUIRE(store->Commit(b).ok());
+  REQUIRE(store->CompactHistory().ok());
+  CommitBatch late;
+  late.history.push_back({"g", 5, -5.0});    // rewrites a point inside an older chunk
+  late.history.push_back({"g", 500, 500.0}); // falls between chunks: a chunk of its own
+  late.history.push_back({"g", 1001, 1001.0});
+  REQUIRE(store->Commit(late).ok());
+  REQUIRE(store->CompactHistory().ok());
+  Result<HistorySlice> tail = store->HistoryTail("g", 2000);
+  REQUIRE(tail.ok());
+  CHECK(tail->first_step == 0);
+  REQUIRE(tail->values.size() == 1002);
+  size_t present = 0;
+  for (size_t i = 0; i < tail->values.size(); ++i) {
+    if (std::isnan(tail->values[i])) continue;
+    ++present;
+    CHECK(tail->values[i] == (i == 5 ? -5.0 : static_cast<double>(i)));
+  }
+  CHECK(present == 23);  // 0..19, 500, 1000, 1001
+  Result<HistorySlice> last = store->HistoryTail("g", 3);
+  REQUIRE(last.ok());
+  CHECK(last->first_step == 999);
+  REQUIRE(last->values.size() == 3);
+  CHECK(std::isnan(last->values[0]));
+  CHECK(last->values[2] == 1001.0);
+}
+
 TEST_CASE("commit compacts the history log once it passes the threshold", "[store]") {
   TempDir dir;
   StoreOptions options = TestOptions(dir);
