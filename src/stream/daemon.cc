@@ -265,6 +265,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       im.offset_changed[rec.stream_index] = true;
     }
     counters_.records.fetch_add(records.size(), std::memory_order_relaxed);
+    if (!records.empty()) counters_.position.store(records.back().next_offset, std::memory_order_relaxed);
     uncommitted += records.size();
 
     const int64_t now_ns = clock->MonotonicNanos();

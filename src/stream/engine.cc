@@ -416,49 +416,89 @@ std::string Engine::EncodeCheckpoint(SeriesId id) const {
   return w.Take();
 }
 
+namespace {
+
+struct DecodedCheckpoint {
+  CheckpointView view;
+  StepAligner aligner;
+  AlertTracker alerts;
+  int64_t next_fit_at = 0;
+};
+
+Result<DecodedCheckpoint> DecodeFull(std::string_view bytes) {
+  DecodedCheckpoint out;
+  CheckpointView& v = out.view;
+  ByteReader r(bytes);
+  uint8_t version = 0, warming = 0, additive = 0, error = 0, trend = 0, season = 0;
+  int32_t period = 1;
+  std::string_view aligner_bytes, alert_bytes, state_bytes;
+  const bool read = r.Get(version) && r.Get(warming) && r.Get(additive) && r.Get(error) && r.Get(trend) &&
+                    r.Get(season) && r.Get(period) && r.Get(v.params.alpha) && r.Get(v.params.beta) &&
+                    r.Get(v.params.gamma) && r.Get(v.params.phi) && r.Get(v.last_time_ms) && r.Get(out.next_fit_at) &&
+                    r.Get(v.warmup_points) && r.GetBytes(aligner_bytes) && r.GetBytes(alert_bytes) &&
+                    r.GetBytes(state_bytes) && r.remaining() == 0;
+  if (!read || version != kCheckpointVersion || warming > 1 || additive > 1 || error > 1 || trend > 4 || season > 2)
+    return Status::Corruption("checkpoint is truncated or of an unknown version");
+  if (!out.aligner.Decode(aligner_bytes) || !out.alerts.Decode(alert_bytes))
+    return Status::Corruption("checkpoint has a bad alignment or alert section");
+  v.warming_up = warming != 0;
+  v.additive_only = additive != 0;
+  v.spec = model::ModelSpec{static_cast<model::ErrorType>(error), static_cast<model::TrendType>(trend),
+                            static_cast<model::SeasonType>(season), period};
+  v.last_step = out.aligner.last_step();
+  v.open_bucket_step = out.aligner.open_step();
+  v.alert_active = out.alerts.active();
+  if (!v.warming_up) {
+    Result<model::State> state = model::DecodeState(state_bytes);
+    if (!state.ok()) return state.status();
+    v.state = std::move(state).value();
+  }
+  return out;
+}
+
+}  // namespace
+
+Result<CheckpointView> DecodeCheckpoint(std::string_view bytes) {
+  Result<DecodedCheckpoint> full = DecodeFull(bytes);
+  if (!full.ok()) return full.status();
+  return std::move(full->view);
+}
+
 Status Engine::RestoreSeries(std::string_view name, std::string_view checkpoint,
                              const HistoryFetcher& warmup_history) {
   Impl& im = *impl_;
+  const std::string where = "checkpoint of series '" + std::string(name) + "'";
+  Result<DecodedCheckpoint> decoded = DecodeFull(checkpoint);
+  if (!decoded.ok()) return decoded.status().WithContext(where);
   im.raw = {};
   auto existing = im.index.find(name);
   std::optional<SeriesId> id = existing != im.index.end() ? std::optional<SeriesId>(existing->second) : im.Create(name);
-  if (!id) return Status::NotFound("no profile matches stored series '" + std::string(name) + "'");
   // Creation during restore is not new work to commit.
   im.batch = EngineBatch();
+  if (!id) return Status::NotFound("no profile matches stored series '" + std::string(name) + "'");
   SeriesRuntime& s = im.series[*id];
-  ByteReader r(checkpoint);
-  uint8_t version = 0, warming = 0, additive = 0, error = 0, trend = 0, season = 0;
-  int32_t period = 1;
-  uint32_t warmup_len = 0;
-  std::string_view aligner_bytes, alert_bytes, state_bytes;
-  const bool read = r.Get(version) && r.Get(warming) && r.Get(additive) && r.Get(error) && r.Get(trend) &&
-                    r.Get(season) && r.Get(period) && r.Get(s.params.alpha) && r.Get(s.params.beta) &&
-                    r.Get(s.params.gamma) && r.Get(s.params.phi) && r.Get(s.last_time_ms) && r.Get(s.next_fit_at) &&
-                    r.Get(warmup_len) && r.GetBytes(aligner_bytes) && r.GetBytes(alert_bytes) && r.GetBytes(state_bytes);
-  const std::string where = "checkpoint of series '" + std::string(name) + "'";
-  if (!read || version != kCheckpointVersion || error > 1 || trend > 4 || season > 2)
-    return Status::Corruption(where + " is truncated or of an unknown version");
-  if (!s.aligner.Decode(aligner_bytes) || !s.alerts.Decode(alert_bytes))
-    return Status::Corruption(where + ": bad alignment or alert section");
-  s.warming_up = warming != 0;
-  s.additive_only = additive != 0;
-  s.spec = model::ModelSpec{static_cast<model::ErrorType>(error), static_cast<model::TrendType>(trend),
-                            static_cast<model::SeasonType>(season), period};
-  if (s.warming_up) {
-    if (warmup_len == 0) return Status::Ok();
+  CheckpointView& v = decoded->view;
+  if (v.warming_up && v.warmup_points > 0) {
     Result<std::vector<double>> history = warmup_history();
     if (!history.ok()) return history.status().WithContext(where);
-    if (history->size() < warmup_len)
-      return Status::Corruption(where + " needs " + std::to_string(warmup_len) + " warm-up points but history has " +
-                                std::to_string(history->size()));
-    s.warmup_values.assign(history->end() - warmup_len, history->end());
-    return Status::Ok();
+    if (history->size() < v.warmup_points)
+      return Status::Corruption(where + " needs " + std::to_string(v.warmup_points) +
+                                " warm-up points but history has " + std::to_string(history->size()));
+    s.warmup_values.assign(history->end() - v.warmup_points, history->end());
   }
-  Result<model::State> state = model::DecodeState(state_bytes);
-  if (!state.ok()) return state.status().WithContext(where);
-  s.state = std::move(state).value();
-  s.update = model::SelectUpdate(s.spec);
-  s.sigma = std::sqrt(s.state.sigma2);
+  s.warming_up = v.warming_up;
+  s.additive_only = v.additive_only;
+  s.spec = v.spec;
+  s.params = v.params;
+  s.last_time_ms = v.last_time_ms;
+  s.next_fit_at = decoded->next_fit_at;
+  s.aligner = decoded->aligner;
+  s.alerts = decoded->alerts;
+  if (!s.warming_up) {
+    s.state = std::move(v.state);
+    s.update = model::SelectUpdate(s.spec);
+    s.sigma = std::sqrt(s.state.sigma2);
+  }
   return Status::Ok();
 }
 

@@ -55,6 +55,7 @@ class OutputSink {
 
 struct DaemonCounters {
   std::atomic<uint64_t> records{0};         // records polled from the source
+  std::atomic<int64_t> position{0};         // next offset of the stream read last (files: byte offset)
   std::atomic<uint64_t> decode_errors{0};
   std::atomic<uint64_t> skipped_lines{0};   // headers, comments, blank lines
   std::atomic<uint64_t> commits{0};         // durable group commits

@@ -144,6 +144,22 @@ struct SeriesView {
   bool alert_active;
 };
 
+// A series checkpoint as stored (Engine::EncodeCheckpoint), decoded for readers (inspect, HTTP).
+struct CheckpointView {
+  bool warming_up = true;
+  bool additive_only = false;
+  model::ModelSpec spec;    // meaningful when !warming_up
+  model::Params params;
+  model::State state;       // empty while warming up
+  int64_t last_step = 0;
+  int64_t open_bucket_step = 0;  // INT64_MIN when no aggregation bucket is open
+  int64_t last_time_ms = 0;
+  bool alert_active = false;
+  uint32_t warmup_points = 0;    // buffered warm-up points (rebuilt from history on restore)
+};
+// Fails with Corruption naming what is wrong.
+Result<CheckpointView> DecodeCheckpoint(std::string_view bytes);
+
 class Engine {
  public:
   // REQUIRES: chooser non-null, clock non-null and outliving the engine. Throws std::invalid_argument
