@@ -41,11 +41,11 @@ struct KafkaSink::Impl {
   // Owner before dependants: the producer thread uses `producer`; it is joined first.
   KafkaHandle producer;
 
-  std::mutex mu;                    // guards queue, stopping, fatal
+  std::mutex mu;                    // guards queue and fatal; stopping is set under it too
   std::condition_variable has_work;  // producer thread waits for events
   std::condition_variable has_room;  // kBlockWithTimeout publishers wait for room
   std::deque<Event> queue;
-  bool stopping = false;
+  std::atomic<bool> stopping{false};
   Status fatal;
   std::thread thread;
 
@@ -60,7 +60,11 @@ struct KafkaSink::Impl {
 void KafkaSink::Impl::OnDelivery(rd_kafka_t* rk, const rd_kafka_message_t* message, void* opaque) {
   auto* impl = static_cast<Impl*>(opaque);
   std::unique_ptr<Event> event(static_cast<Event*>(message->_private));
-  --impl->in_flight;
+  // Leaves in_flight only after a re-queue has raised depth, so Flush never sees both at zero early.
+  struct InFlightRelease {
+    std::atomic<int64_t>& count;
+    ~InFlightRelease() { --count; }
+  } release{impl->in_flight};
   if (message->err == RD_KAFKA_RESP_ERR_NO_ERROR) {
     ++impl->delivered;
     return;
@@ -71,10 +75,7 @@ void KafkaSink::Impl::OnDelivery(rd_kafka_t* rk, const rd_kafka_message_t* messa
                    message->err == RD_KAFKA_RESP_ERR_INVALID_MSG_SIZE ||
                    message->err == RD_KAFKA_RESP_ERR_TOPIC_AUTHORIZATION_FAILED ||
                    message->err == RD_KAFKA_RESP_ERR__PURGE_QUEUE || message->err == RD_KAFKA_RESP_ERR__PURGE_INFLIGHT;
-  {
-    std::lock_guard<std::mutex> lock(impl->mu);
-    permanent = permanent || impl->stopping;  // past the shutdown deadline nothing is re-queued
-  }
+  permanent = permanent || impl->stopping;  // past the shutdown deadline nothing is re-queued
   std::string topic = message->rkt != nullptr ? rd_kafka_topic_name(message->rkt) : "?";
   if (!fatal && !permanent && event->attempts <= impl->options.max_redeliveries) {
     ++impl->redeliveries;
@@ -134,19 +135,26 @@ void KafkaSink::Impl::Run() {
       std::unique_lock<std::mutex> lock(mu);
       has_work.wait_for(lock, std::chrono::milliseconds(50), [&] { return !queue.empty() || stopping; });
       if (queue.empty() && stopping && in_flight == 0) return;
-      batch.swap(queue);
-      depth -= static_cast<int64_t>(batch.size());
+      batch.swap(queue);  // `depth` still counts these until librdkafka has them
     }
     if (!batch.empty()) has_room.notify_all();
     while (!batch.empty()) {
+      if (stopping) {
+        // Past the shutdown deadline: what librdkafka could not take is reported, not dropped silently.
+        lost += static_cast<int64_t>(batch.size());
+        depth -= static_cast<int64_t>(batch.size());
+        spdlog::error("kafka sink: {} event(s) LOST at shutdown (never handed to the producer)", batch.size());
+        batch.clear();
+        break;
+      }
       if (!Produce(batch.front())) {
         rd_kafka_poll(producer.get(), 20);  // librdkafka is full: serve reports, then retry
         continue;
       }
       batch.pop_front();
+      --depth;
     }
-    rd_kafka_poll(producer.get(), 0);
-    if (stopping) rd_kafka_poll(producer.get(), 20);
+    rd_kafka_poll(producer.get(), stopping ? 20 : 0);
   }
 }
 
@@ -158,13 +166,6 @@ KafkaSink::~KafkaSink() {
   {
     std::lock_guard<std::mutex> lock(impl_->mu);
     impl_->stopping = true;
-    // Whatever did not make it in time is reported, not silently dropped.
-    if (!impl_->queue.empty()) {
-      impl_->lost += static_cast<int64_t>(impl_->queue.size());
-      spdlog::error("kafka sink: {} queued event(s) LOST at shutdown", impl_->queue.size());
-      impl_->depth -= static_cast<int64_t>(impl_->queue.size());
-      impl_->queue.clear();
-    }
   }
   impl_->has_work.notify_all();
   // The thread exits once nothing is in flight; the purge in KafkaHandle::Reset ends stragglers.
