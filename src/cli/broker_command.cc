@@ -2,7 +2,7 @@
 // work until SIGINT/SIGTERM. In memory only.
 #include <signal.h>
 
-#include <spdlog/sinks/stderr_color_sinks.h>
+#include <spdlog/sinks/stdout_color_sinks.h>
 #include <spdlog/spdlog.h>
 
 #include <CLI/CLI.hpp>
