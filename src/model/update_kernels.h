@@ -70,12 +70,9 @@ struct Kernel {
     return q;
   }
 
-  // Applies the correction for absolute error e (0 for a gap step).
-  static inline void Correct(const Params& p, State& st, const Prediction& q, double e) {
-    double scaled = e;
-    // 1/s does not depend on this step's error, so the division runs off the level's
-    // dependency chain (one multiply on it instead of a divide).
-    if constexpr (S == SeasonType::kMultiplicative) scaled = e * (1.0 / q.s);
+  // Applies the correction. `scaled` is e~ (the error in level units: e, or e / s with a
+  // multiplicative season) and `e` the absolute error; both 0 for a gap step.
+  static inline void Correct(const Params& p, State& st, const Prediction& q, double scaled, double e) {
     const double l_prev = st.level;
     st.level = q.lp + p.alpha * scaled;
     if constexpr (T == TrendType::kAdditive || T == TrendType::kAdditiveDamped) {
@@ -101,7 +98,17 @@ struct Kernel {
   static StepResult Step(const Params& p, State& st, double y) {
     const Prediction q = Predict(p, st);
     const double e = y - q.mu;
-    Correct(p, st, q, std::isnan(y) ? 0.0 : e);
+    if (std::isnan(y)) [[unlikely]] {
+      Correct(p, st, q, 0.0, 0.0);
+    } else {
+      // e~ = y_deseasonalised - lp (equal to e, or e / s, up to rounding). y_deseasonalised
+      // does not depend on the previous level, so the level's dependency chain from one step
+      // to the next is one subtraction and one multiply-add long.
+      double y_des = y;
+      if constexpr (S == SeasonType::kAdditive) y_des = y - q.s;
+      if constexpr (S == SeasonType::kMultiplicative) y_des = y * (1.0 / q.s);
+      Correct(p, st, q, y_des - q.lp, e);
+    }
     if constexpr (E == ErrorType::kAdditive) {
       return {q.mu, e, e};
     } else {
@@ -115,7 +122,9 @@ struct Kernel {
     const Prediction q = Predict(p, st);
     double e = eps;
     if constexpr (E == ErrorType::kMultiplicative) e = q.mu * eps;
-    Correct(p, st, q, e);
+    double scaled = e;
+    if constexpr (S == SeasonType::kMultiplicative) scaled = e / q.s;
+    Correct(p, st, q, scaled, e);
     return q.mu + e;
   }
 };
