@@ -7,11 +7,13 @@
 //                              position), synchronous NORMAL
 //   commit_states_per_s_full   the same with synchronous FULL
 //   full_over_normal           ratio of the two
-//   commit_states_per_cpu_s    mixed-commit states per CPU second of this process (NORMAL), a
-//                              figure less sensitive to other load on a shared machine
+//   commit_states_per_cpu_s    mixed-commit states per CPU second spent inside Commit (NORMAL),
+//                              less sensitive to other load on a shared machine
 //   states_only_per_s          states per second in states-only commits (NORMAL)
 //   raw_sqlite_upserts_per_s   bare sqlite3 upserts of the same rows in the same run (NORMAL)
 //   store_over_raw             states_only_per_s / raw_sqlite_upserts_per_s: the store's overhead
+//   states_only_per_cpu_s, raw_sqlite_upserts_per_cpu_s, store_over_raw_cpu: the same per CPU
+//                              second of this process (the steadier ratio on a loaded machine)
 //   history_points_per_s       history points appended per second, history-only commits, NORMAL
 //   compact_points_per_s       history log points moved into per-series chunks per second
 //   load_series_per_s          series (with model-less 256-byte states) read back at start-up
@@ -31,7 +33,7 @@
 
 #include <sqlite3.h>
 
-#include <ctime>
+#include <time.h>
 
 #include "bench/bench.h"
 #include "plimsoll/store/store.h"
@@ -89,16 +91,28 @@ void Check(const Status& status) {
 }
 
 struct LevelFigures {
-  double states_per_s = 0, states_per_cpu_s = 0, states_only_per_s = 0, raw_per_s = 0, history_per_s = 0;
+  double states_per_s = 0, states_per_cpu_s = 0, states_only_per_s = 0, states_only_per_cpu_s = 0;
+  double raw_per_s = 0, raw_per_cpu_s = 0, history_per_s = 0;
   double compact_per_s = 0, load_per_s = 0, mean_ms = 0, max_ms = 0;
 };
 
-double CpuSeconds() { return static_cast<double>(std::clock()) / CLOCKS_PER_SEC; }
+// CPU time of this process (user + system): on a shared machine, less disturbed by other load
+// than wall-clock time. Background I/O done by the kernel's writeback is not counted.
+double CpuSeconds() {
+  timespec t{};
+  clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &t);
+  return static_cast<double>(t.tv_sec) + static_cast<double>(t.tv_nsec) * 1e-9;
+}
+
+struct Rate {
+  double per_s = 0;      // wall clock
+  double per_cpu_s = 0;  // process CPU time
+};
 
 // Baseline in the same run: bare sqlite3 upserts of the same rows (same table shape, pragmas,
 // one transaction per `dirty` rows), so store/raw is a ratio that other load on the machine
 // affects alike.
-double RawSqliteUpsertsPerSecond(Synchronous sync, int64_t series, int64_t dirty, int commits) {
+Rate RawSqliteUpserts(Synchronous sync, int64_t series, int64_t dirty, int commits) {
   BenchDir dir;
   sqlite3* db = nullptr;
   if (sqlite3_open(dir.File().c_str(), &db) != SQLITE_OK) throw std::runtime_error("raw sqlite open failed");
@@ -127,17 +141,20 @@ double RawSqliteUpsertsPerSecond(Synchronous sync, int64_t series, int64_t dirty
   sqlite3_exec(db, "BEGIN", nullptr, nullptr, nullptr);
   for (int64_t i = 0; i < series; ++i) upsert(i, 0, blobs[static_cast<size_t>(i % dirty)]);
   sqlite3_exec(db, "COMMIT", nullptr, nullptr, nullptr);
-  double total = 0;
+  double total = 0, cpu = 0;
   for (int c = 0; c < commits; ++c) {
     auto start = std::chrono::steady_clock::now();
+    const double cpu_start = CpuSeconds();
     sqlite3_exec(db, "BEGIN IMMEDIATE", nullptr, nullptr, nullptr);
     for (int64_t j = 0; j < dirty; ++j) upsert((c * dirty + j) % series, c + 1, blobs[static_cast<size_t>(j)]);
     if (sqlite3_exec(db, "COMMIT", nullptr, nullptr, nullptr) != SQLITE_OK) throw std::runtime_error("raw commit");
+    cpu += CpuSeconds() - cpu_start;
     total += Seconds(std::chrono::steady_clock::now() - start);
   }
   sqlite3_finalize(stmt);
   sqlite3_close(db);
-  return static_cast<double>(dirty * commits) / total;
+  const double rows = static_cast<double>(dirty * commits);
+  return Rate{rows / total, rows / cpu};
 }
 
 LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commits, int64_t history_points,
@@ -158,8 +175,7 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
   // Mixed commits: `dirty` states (a sliding window over the series), one history point each,
   // and the source position.
   LevelFigures f;
-  double total = 0;
-  const double cpu_start = CpuSeconds();
+  double total = 0, cpu = 0;
   for (int c = 0; c < commits; ++c) {
     batch.Clear();
     for (int64_t j = 0; j < dirty; ++j) {
@@ -169,14 +185,15 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
     }
     batch.positions.push_back({"kafka:calls", 0, (c + 1) * dirty});
     auto start = std::chrono::steady_clock::now();
+    const double cpu_start = CpuSeconds();
     Check(store->Commit(batch));
+    cpu += CpuSeconds() - cpu_start;
     const double s = Seconds(std::chrono::steady_clock::now() - start);
     total += s;
     f.max_ms = std::max(f.max_ms, s * 1e3);
   }
   f.states_per_s = static_cast<double>(dirty * commits) / total;
-  // CPU time includes building the batches (outside the wall-clock timing), so this undercounts.
-  f.states_per_cpu_s = static_cast<double>(dirty * commits) / (CpuSeconds() - cpu_start);
+  f.states_per_cpu_s = static_cast<double>(dirty * commits) / cpu;
   f.mean_ms = total / commits * 1e3;
   report.rows.push_back({{"synchronous", level}, {"workload", std::string("states+history+position")},
                          {"commits", int64_t{commits}}, {"records_per_commit", dirty * 2 + 1},
@@ -184,7 +201,7 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
                          {"commit_ms_max", f.max_ms}});
 
   // States-only commits: the same shape as the raw SQLite baseline.
-  double states_total = 0, states_max_ms = 0;
+  double states_total = 0, states_max_ms = 0, states_cpu = 0;
   for (int c = 0; c < commits; ++c) {
     batch.Clear();
     for (int64_t j = 0; j < dirty; ++j) {
@@ -192,17 +209,22 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
       batch.states.push_back({Name(i), commits + c + 1, 0, Blob(rng)});
     }
     auto start = std::chrono::steady_clock::now();
+    const double cpu_start = CpuSeconds();
     Check(store->Commit(batch));
+    states_cpu += CpuSeconds() - cpu_start;
     const double s = Seconds(std::chrono::steady_clock::now() - start);
     states_total += s;
     states_max_ms = std::max(states_max_ms, s * 1e3);
   }
   f.states_only_per_s = static_cast<double>(dirty * commits) / states_total;
+  f.states_only_per_cpu_s = static_cast<double>(dirty * commits) / states_cpu;
   report.rows.push_back({{"synchronous", level}, {"workload", std::string("states only")},
                          {"commits", int64_t{commits}}, {"records_per_commit", dirty},
                          {"items", std::string("states")}, {"items_per_s", f.states_only_per_s},
                          {"commit_ms_mean", states_total / commits * 1e3}, {"commit_ms_max", states_max_ms}});
-  f.raw_per_s = RawSqliteUpsertsPerSecond(sync, series, dirty, commits);
+  const Rate raw = RawSqliteUpserts(sync, series, dirty, commits);
+  f.raw_per_s = raw.per_s;
+  f.raw_per_cpu_s = raw.per_cpu_s;
   report.rows.push_back({{"synchronous", level}, {"workload", std::string("bare sqlite3 upserts")},
                          {"commits", int64_t{commits}}, {"records_per_commit", dirty},
                          {"items", std::string("states")}, {"items_per_s", f.raw_per_s},
@@ -266,6 +288,9 @@ BenchReport RunStoreBench(const BenchArgs& args) {
   report.Add("states_only_per_s", normal.states_only_per_s);
   report.Add("raw_sqlite_upserts_per_s", normal.raw_per_s);
   report.Add("store_over_raw", normal.states_only_per_s / normal.raw_per_s);
+  report.Add("states_only_per_cpu_s", normal.states_only_per_cpu_s);
+  report.Add("raw_sqlite_upserts_per_cpu_s", normal.raw_per_cpu_s);
+  report.Add("store_over_raw_cpu", normal.states_only_per_cpu_s / normal.raw_per_cpu_s);
   report.Add("history_points_per_s", normal.history_per_s);
   report.Add("history_points_per_s_full", full.history_per_s);
   report.Add("compact_points_per_s", normal.compact_per_s);
