@@ -61,7 +61,9 @@ TEST_CASE("records round-trip through the embedded broker with keys, payloads an
   REQUIRE(offsets.ok());
 
   testing::RecordingListener listener;
-  auto source = KafkaSource::Create(SourceOptions(*broker, topic, "g-roundtrip"), testing::MapLookup({}), &listener);
+  KafkaSourceOptions options = SourceOptions(*broker, topic, "g-roundtrip");
+  options.lag_interval_ms = 0;  // recompute on every Poll
+  auto source = KafkaSource::Create(options, testing::MapLookup({}), &listener);
   REQUIRE(source.ok());
   auto got = Drain(**source, records.size(), 20000);
   REQUIRE(got.ok());
@@ -86,6 +88,8 @@ TEST_CASE("records round-trip through the embedded broker with keys, payloads an
   CHECK(c.assigned_partitions == 3);
   CHECK(c.rebalances >= 1);
   CHECK(c.held_partitions == 0);
+  CHECK(c.lag == 0);  // everything produced has been read
+  CHECK(c.bytes > 0);
   CHECK(listener.assigned.size() == 3);
 }
 
@@ -144,6 +148,23 @@ TEST_CASE("a partition the group consumed elsewhere is held and counted while th
   auto committed = testing::ReadCommitted(broker->BootstrapServers(), "g-held", topic, 1);
   REQUIRE(committed.ok());
   CHECK(*committed == 20);
+}
+
+TEST_CASE("a stored position outside the log holds that partition and counts the error", "[kafka]") {
+  const std::string topic = testing::UniqueName("outside");
+  auto broker = StartBroker(topic, 2);
+  REQUIRE(testing::ProduceAll(broker->BootstrapServers(), topic, Records(2, 10)).ok());
+  // Partition 0 claims position 1000 of a 10-record log (e.g. a store from another cluster).
+  auto lookup = testing::MapLookup({{{"kafka:" + topic, 0}, 1000}, {{"kafka:" + topic, 1}, 0}});
+  auto source = KafkaSource::Create(SourceOptions(*broker, topic, "g-outside"), lookup, nullptr);
+  REQUIRE(source.ok());
+  auto got = Drain(**source, 10, 20000, 1500);
+  REQUIRE(got.ok());
+  CHECK(got->size() == 10);
+  for (const OwnedRecord& r : *got) CHECK(r.partition == 1);
+  KafkaSourceCounters c = (*source)->Counters();
+  CHECK(c.offset_reset_errors >= 1);
+  CHECK(c.held_partitions == 1);
 }
 
 TEST_CASE("empty, missing, huge and binary payloads reach the caller as raw records", "[kafka]") {
