@@ -86,6 +86,7 @@ class KafkaSource final : public stream::RecordSource {
   // See RecordSource. Views stay valid until the next Poll(). Never returns Aborted (a group
   // subscription does not end). Fatal errors (librdkafka fatal, lost authorisation) are returned.
   Status Poll(std::vector<stream::RawRecord>& out, size_t max_records, int timeout_ms) override;
+  // Grows when partitions are first assigned (inside Poll): re-read it after each Poll.
   std::span<const stream::StreamId> Streams() const override;
   // Commits next offsets asynchronously; failures are counted (commit_failures), not returned.
   // InvalidArgument for a stream that is not a Kafka stream of this source.
