@@ -109,7 +109,10 @@ Status RecordDecoder::Decode(const RawRecord& raw, DecodedRecord& out) {
 Status RecordDecoder::Decode(std::string_view key, std::string_view payload, int64_t timestamp_ms,
                              DecodedRecord& out) {
   if (payload.size() > options_.max_record_bytes) return DecodePadded(key, payload, timestamp_ms, out);
-  std::memcpy(impl_->padded.get(), payload.data(), payload.size());
+  // An empty view may have a null data(); memcpy from null is undefined even for 0 bytes.
+  if (!payload.empty()) std::memcpy(impl_->padded.get(), payload.data(), payload.size());
+  // Zeroed padding: simdjson's wording for malformed input depends on the bytes after it.
+  std::memset(impl_->padded.get() + payload.size(), 0, kRecordPadding);
   return DecodePadded(key, std::string_view(impl_->padded.get(), payload.size()), timestamp_ms, out);
 }
 
@@ -122,12 +125,17 @@ Status RecordDecoder::DecodePadded(std::string_view key, std::string_view payloa
   }
   size_t start = 0;
   while (start < payload.size() && IsSpace(payload[start])) ++start;
-  if (start == payload.size()) {
-    out.skip = true;
-    return Status::Ok();
-  }
+  // Files never hand over empty lines; an empty or blank Kafka message is a bad record.
+  if (start == payload.size()) return Bad("record is empty");
   const char first = payload[start];
-  if (first == '{' && options_.format != RecordFormat::kCsv) return DecodeJson(key, payload, timestamp_ms, out);
+  if (first == '{' && options_.format != RecordFormat::kCsv) {
+    Status s = DecodeJson(key, payload, timestamp_ms, out);
+    // Whether a record is accepted never depends on the padding, but simdjson's message for a
+    // malformed one can (found by decode_fuzz). Refused records are rare: redo them with zeroed
+    // padding so a dead letter's reason is the same however the record was buffered.
+    if (!s.ok() && payload.data() != impl_->padded.get()) return Decode(key, payload, timestamp_ms, out);
+    return s;
+  }
   if (options_.format == RecordFormat::kCsv || (options_.format == RecordFormat::kAuto && key.empty()) ||
       (options_.format == RecordFormat::kAuto && payload.find(',') != std::string_view::npos)) {
     return DecodeCsv(key, payload, timestamp_ms, out);

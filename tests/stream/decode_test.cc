@@ -221,12 +221,17 @@ TEST_CASE("csv with a key may omit the series", "[stream]") {
   CheckRecord(Run("1772352930,5", "queue-3"), "queue-3", kT, 5);
 }
 
-TEST_CASE("csv header, comment and blank lines are skipped", "[stream]") {
+TEST_CASE("csv header and comment lines are skipped", "[stream]") {
   CHECK(Run("series,time,value").rec.skip);
   CHECK(Run("Series,Time,Value").rec.skip);
   CHECK(Run("# a comment").rec.skip);
-  CHECK(Run("   ").rec.skip);
-  CHECK(Run("").rec.skip);
+  CHECK_FALSE(Run("queue-7,1772352930,1").rec.skip);
+}
+
+TEST_CASE("empty and blank records are refused", "[stream]") {
+  CHECK(Error("") == "record is empty");
+  CHECK(Error("   \t") == "record is empty");
+  CHECK(Error("", "key-only", 1772352930000) == "record is empty");
 }
 
 TEST_CASE("csv with too few fields is refused", "[stream]") {
@@ -296,6 +301,27 @@ TEST_CASE("padded decoding ignores whatever follows the payload", "[stream]") {
   std::string bare = "8.5" + std::string(kRecordPadding, '5');
   REQUIRE(d.DecodePadded("k", std::string_view(bare.data(), 3), kT, r).ok());
   CHECK(r.value == 8.5);
+}
+
+TEST_CASE("an empty payload view with null data is refused cleanly", "[stream]") {
+  // Found by decode_fuzz: a keyed record with nothing after the key reached memcpy(dst, nullptr, 0).
+  RecordDecoder d;
+  DecodedRecord r;
+  CHECK(d.Decode("k", std::string_view(), -1, r).message() == "record is empty");
+}
+
+TEST_CASE("a malformed record gets the same reason whatever bytes follow it", "[stream]") {
+  // Found by decode_fuzz: simdjson's message for this record depended on the padding bytes.
+  const std::string bad = std::string(R"({"series":"s")") + "\x11" + std::string(3, '\0') + R"(me":1772352930,"F)" +
+                          std::string(1, '\0') + R"(lue":1,"extra":{"a)" + "\x11" + std::string(3, '\0') + R"(,null,"x"]}})";
+  RecordDecoder d;
+  DecodedRecord r;
+  const Status reference = d.Decode({}, bad, -1, r);
+  REQUIRE_FALSE(reference.ok());
+  for (char fill : std::string("}]\"x0 ")) {
+    std::string block = bad + std::string(kRecordPadding, fill);
+    CHECK(d.DecodePadded({}, std::string_view(block.data(), bad.size()), -1, r) == reference);
+  }
 }
 
 TEST_CASE("decode options are validated", "[stream]") {

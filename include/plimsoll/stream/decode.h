@@ -9,7 +9,8 @@
 //   number 12.5 (payload) with the series in the record key; time is the broker timestamp.
 //   CSV    queue-7,2026-03-01T08:15:00Z,12.5   (or time,value with the series in the key);
 //          fields may be double-quoted ("a,b" with "" for a quote); a header line
-//          series,time,value, '#' comment lines and blank lines are skipped, not errors.
+//          series,time,value and '#' comment lines are skipped, not errors.
+//   An empty or blank record is an error ("record is empty"); file sources drop empty lines.
 //
 // Thread-safety: a decoder is used by one thread at a time (it owns a parser and a scratch buffer).
 
@@ -61,8 +62,8 @@ struct DecodedRecord {
   std::string_view series;
   int64_t time_ms = 0;  // epoch milliseconds, UTC, inside the options' time window
   double value = 0;     // finite
-  // True for lines that carry no observation (CSV header, '#' comment, blank line); the other
-  // fields are then unset. Such lines are neither records nor errors.
+  // True for lines that carry no observation (CSV header, '#' comment); the other fields are
+  // then unset. Such lines are neither records nor errors.
   bool skip = false;
 };
 

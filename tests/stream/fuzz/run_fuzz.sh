@@ -34,7 +34,9 @@ run() {
   local name=$1
   mkdir -p "$out/corpus-$name"
   echo "fuzzing $name for ${seconds}s"
-  (cd "$out" && "./${name}_fuzz" -max_total_time="$seconds" -jobs="$jobs" -workers="$jobs" \
+  local parallel=()
+  if (( jobs > 1 )); then parallel=(-jobs="$jobs" -workers="$jobs"); fi
+  (cd "$out" && "./${name}_fuzz" -max_total_time="$seconds" "${parallel[@]}" \
       -max_len=4096 -timeout=10 -print_final_stats=1 "corpus-$name" "$here/corpus/$name")
 }
 
