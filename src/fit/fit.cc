@@ -462,15 +462,40 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
     }
   }
   const int starts = std::min<int>(options.starts, static_cast<int>(kStarts.size()));
-  for (int s = 0; s < starts; ++s) start_points.push_back(problem.StartPoint(kStarts[static_cast<size_t>(s)]));
+  bool screened = false;
+  int screening_evaluations = 0;  // counted in the budget of this fit
+  if (starts > 1 && problem.estimate_season()) {
+    // Screening with every seasonal state held at its heuristic value: a handful of dimensions,
+    // so each screening evaluation is cheap and few are needed; the full run starts from the
+    // best screened point.
+    FitOptions reduced = options;
+    reduced.max_estimated_season = 1;
+    Problem coarse(spec, y, reduced, *heuristic, NoiseScale(y), clock, deadline);
+    const int coarse_screen = std::min(options.max_evaluations / (2 * starts),
+                                       kScreenPerDim * static_cast<int>(coarse.dim()) + kScreenBase);
+    for (int s = 0; s < starts; ++s) {
+      std::vector<double> z = coarse.StartPoint(kStarts[static_cast<size_t>(s)]);
+      if (coarse.Evaluate(z.data()) >= kPenalty) continue;
+      if (RunOnce(coarse, z, coarse_screen, options.relative_tolerance) == StopReason::kTimeBudget) break;
+    }
+    if (!coarse.best_z().empty() && coarse.Decode(coarse.best_z().data())) {
+      start_points.push_back(problem.Encode(coarse.params(), coarse.state()));
+      screened = true;
+    }
+    screening_evaluations = coarse.evaluations();
+  }
+  if (!screened) {
+    for (int s = 0; s < starts; ++s) start_points.push_back(problem.StartPoint(kStarts[static_cast<size_t>(s)]));
+  }
 
   FitResult out;
   out.spec = spec;
   out.seasonal_states_estimated = !spec.has_season() || problem.estimate_season();
   StopReason stop = StopReason::kConverged;
-  // Several starts: each gets a short screening run; the full run continues from the best point
-  // any of them reached. The surfaces are often multimodal in (alpha, beta, phi), and a screening
-  // run is enough to see which basin a start falls into.
+  // Several starts (non-seasonal forms, and seasonal ones not screened above): each gets a short
+  // screening run; the full run continues from the best point any of them reached. The surfaces
+  // are often multimodal in (alpha, beta, phi), and a screening run is enough to see which
+  // basin a start falls into.
   const int screen = start_points.size() > 1
                          ? std::min(options.max_evaluations / static_cast<int>(2 * start_points.size()),
                                     kScreenPerDim * static_cast<int>(problem.dim()) + kScreenBase)
@@ -486,7 +511,7 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
   // stops while its interpolation set is degenerate; a restart that finds nothing costs about
   // 2 dim + 1 evaluations. At most kMaxRestarts restarts, while they still improve.
   if (!problem.best_z().empty() && stop != StopReason::kTimeBudget) {
-    const int budget_end = options.max_evaluations;
+    const int budget_end = options.max_evaluations - screening_evaluations;
     for (int round = 0; round <= kMaxRestarts; ++round) {
       const int left = budget_end - problem.evaluations();
       if (left <= 0) {
@@ -521,7 +546,7 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
   out.criteria = model::Criteria(out.loglik, out.n, out.k);
   out.stop = stop;
   out.converged = stop == StopReason::kConverged;
-  out.evaluations = usual_evaluations + problem.evaluations();
+  out.evaluations = usual_evaluations + screening_evaluations + problem.evaluations();
   out.seconds = static_cast<double>(clock.MonotonicNanos() - start_nanos) * 1e-9;
   return out;
 }
