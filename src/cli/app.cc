@@ -1,5 +1,8 @@
 #include "plimsoll/cli/app.h"
 
+#include <spdlog/sinks/stdout_color_sinks.h>
+#include <spdlog/spdlog.h>
+
 #include <CLI/CLI.hpp>
 #include <string>
 #include <vector>
@@ -29,6 +32,8 @@ int Main(int argc, char** argv) {
   app.set_version_flag("--version", std::string("plimsoll ") + kVersion);
   app.require_subcommand(1);
   app.footer("Run 'plimsoll VERB --help' for the options of one verb.");
+  // Logs go to stderr: stdout carries verbs' machine-readable output (--json, addresses).
+  spdlog::set_default_logger(spdlog::stderr_color_mt("plimsoll"));
   CommandContext context;
   for (VerbSetup setup : Verbs()) setup(app, context);
   try {

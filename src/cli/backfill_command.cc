@@ -60,7 +60,7 @@ int RunBackfill(const BackfillFlags& flags) {
     std::cerr << "plimsoll backfill: " << daemon.status().ToString() << "\n";
     return 1;
   }
-  Result<OpenedSource> source = OpenSource(*config, (*daemon)->Positions());
+  Result<OpenedSource> source = OpenSource(*config, **daemon);
   if (!source.ok()) {
     std::cerr << "plimsoll backfill: " << source.status().ToString() << "\n";
     return 1;

@@ -1,6 +1,7 @@
 #pragma once
-// Opens the record source (and, for Kafka, the output sink and the embedded broker) that the
-// configuration's [source] section names.
+// Opens the record source the configuration's [source] section names and, for Kafka, the output
+// sink (flags, alerts, model changes, dead letters to topics) and, for "embedded", an in-process
+// broker.
 
 #include <memory>
 
@@ -12,12 +13,13 @@
 namespace plimsoll::cli {
 
 struct OpenedSource {
-  std::shared_ptr<void> keep_alive;            // what the source needs to outlive it (embedded broker)
-  std::unique_ptr<stream::RecordSource> source;
+  std::shared_ptr<void> broker;                // embedded broker; declared first so it outlives its clients
   std::unique_ptr<stream::OutputSink> sink;    // null when outputs stay in SQLite only
+  std::unique_ptr<stream::RecordSource> source;
+  std::string bootstrap;                       // Kafka kinds: the bootstrap address used
 };
 
-// `positions`: where each stream resumes (Daemon::Positions()).
-Result<OpenedSource> OpenSource(const stream::Config& config, const stream::PositionLookup& positions);
+// Resumes streams from daemon.Positions(); Kafka revokes flush through daemon.Listener().
+Result<OpenedSource> OpenSource(const stream::Config& config, stream::Daemon& daemon);
 
 }  // namespace plimsoll::cli

@@ -42,7 +42,7 @@ int RunWatch(const WatchFlags& flags) {
     std::cerr << "plimsoll watch: " << daemon.status().ToString() << "\n";
     return 1;
   }
-  Result<OpenedSource> source = OpenSource(*config, (*daemon)->Positions());
+  Result<OpenedSource> source = OpenSource(*config, **daemon);
   if (!source.ok()) {
     std::cerr << "plimsoll watch: " << source.status().ToString() << "\n";
     return 1;

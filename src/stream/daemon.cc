@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <functional>
 #include <map>
 #include <utility>
 
@@ -28,7 +29,19 @@ double IfUsed(bool used, double value) { return used ? value : store::kNoValue; 
 
 }  // namespace
 
-struct Daemon::Impl {
+struct Daemon::Impl : PartitionListener {
+  void OnAssign(std::span<const StreamId> streams) override {
+    for (const StreamId& s : streams) spdlog::info("assigned {}[{}]", s.name, s.partition);
+  }
+  void OnRevoke(std::span<const StreamId> streams) override {
+    for (const StreamId& s : streams) spdlog::info("revoking {}[{}]: committing what was read", s.name, s.partition);
+    if (flush_for_revoke) {
+      Status flushed = flush_for_revoke();
+      if (!flushed.ok()) spdlog::error("commit before revoke failed: {}", flushed.ToString());
+    }
+  }
+
+  std::function<Status()> flush_for_revoke;  // set while Run is active
   Clock* clock;
   std::string store_path;
   std::unique_ptr<CommitWriter> writer;
@@ -108,6 +121,8 @@ void Daemon::RefitQueued(SeriesId id) {
     spdlog::warn("series '{}': additive refit failed, current model kept: {}", name, status.ToString());
   }
 }
+
+PartitionListener* Daemon::Listener() { return impl_.get(); }
 
 store::StoreCounters Daemon::StoreCounters() const { return impl_->writer->StoreCounters(); }
 
@@ -233,6 +248,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     }
   };
 
+  im.flush_for_revoke = [&] { return drain(options_.shutdown_timeout_ms); };
   bool end_of_input = false;
   while (!stop.load(std::memory_order_relaxed) && !end_of_input) {
     take_durable();
@@ -296,6 +312,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   }
   set_paused(false);
   Status drained = drain(options_.shutdown_timeout_ms);
+  im.flush_for_revoke = nullptr;
   if (!drained.ok()) {
     spdlog::error("final commit not durable: {}", drained.ToString());
     return drained;

@@ -82,6 +82,10 @@ class Daemon {
   // Stored positions as of the last durable commit: give this to sources when opening them.
   PositionLookup Positions() const;
 
+  // For Kafka sources: on revoke, commits everything consumed so far and waits until it is
+  // durable (inside Run); outside Run there is nothing uncommitted and it does nothing.
+  PartitionListener* Listener();
+
   // Runs until the source ends (Aborted from Poll) or `stop` becomes true, then commits what it
   // holds and waits for it to be durable. Returns OK, or the source's fatal error, or Unavailable
   // when the final commit could not be made durable in time (nothing is lost: positions were not
