@@ -477,6 +477,7 @@ Status Engine::RestoreSeries(std::string_view name, std::string_view checkpoint,
   im.batch = EngineBatch();
   if (!id) return Status::NotFound("no profile matches stored series '" + std::string(name) + "'");
   SeriesRuntime& s = im.series[*id];
+  s.dirty = false;  // the cleared batch no longer lists it; the next change must add it again
   CheckpointView& v = decoded->view;
   if (v.warming_up && v.warmup_points > 0) {
     Result<std::vector<double>> history = warmup_history();

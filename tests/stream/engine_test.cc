@@ -1,6 +1,7 @@
 #include "plimsoll/stream/engine.h"
 
 #include <catch2/catch.hpp>
+#include <algorithm>
 #include <cmath>
 #include <string>
 #include <vector>
@@ -254,6 +255,12 @@ TEST_CASE("a restored checkpoint continues bit-identically to an uninterrupted e
   }
   CHECK(second.engine->TakeBatch().empty());  // restoring is not new work
   feed(second, 25, 40);
+  // Every restored series that received records is dirty again: its new state will be committed.
+  EngineBatch after = second.engine->TakeBatch();
+  for (const char* name : {"level", "count-a"}) {
+    INFO(name);
+    CHECK(std::count(after.dirty.begin(), after.dirty.end(), *second.engine->FindSeries(name)) == 1);
+  }
   REQUIRE(second.engine->series_count() == whole.engine->series_count());
   for (SeriesId id = 0; id < whole.engine->series_count(); ++id) {
     SeriesView a = whole.engine->View(id);
