@@ -26,6 +26,13 @@ ModelChooser MakeFitChooser(fit::FitOptions base, const Clock* clock) {
     choice.spec = best.spec;
     choice.params = best.params;
     choice.initial = best.initial_state;
+    // The maximum-likelihood sigma2 (SSE/n) is biased low by the k estimated parameters; over a
+    // short warm-up with many seasonal states that makes the band too narrow and flags far more
+    // than its level says. The band and intervals use the unbiased SSE/(n - k).
+    // Seasonal states kept from the heuristic were estimated from the same data too.
+    const int k = best.k + (best.seasonal_states_estimated ? 0 : best.spec.period - 1);
+    if (best.n > k + 1)
+      choice.initial.sigma2 = best.sigma2 * static_cast<double>(best.n) / static_cast<double>(best.n - k);
     choice.loglik = best.loglik;
     choice.aicc = best.criteria.aicc;
     if (!best.seasonal_states_estimated) choice.note = "seasonal initial states kept from the heuristic";

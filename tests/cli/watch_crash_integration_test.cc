@@ -26,8 +26,8 @@ namespace {
 
 namespace fs = std::filesystem;
 
-constexpr int kSeries = 50;
-constexpr int kSteps = 4000;  // 50 x 4000 = 200k records
+constexpr int kSeries = 10;
+constexpr int kSteps = 20000;  // 10 x 20000 = 200k records
 
 // Invented test feed: hourly series from ETS(A,N,A)/(M,Ad,M)-like simulations with a few spikes
 // and one level shift, interleaved in time order.
@@ -42,9 +42,9 @@ void WriteFeed(const std::string& path) {
     model::State init = model::MakeState(200.0 + s, 0.0, season);
     const double sigma2 = spec.error == model::ErrorType::kAdditive ? 9.0 : 0.0004;
     std::vector<double> y = model::SimulateSeries(spec, params, init, sigma2, kSteps, 1000 + s);
-    for (int k = 500; k < kSteps; k += 450 + s) y[k] += 80.0;         // spikes
-    if (s % 10 == 3)
-      for (int k = 2500; k < kSteps; ++k) y[k] += 60.0;               // level shift
+    for (int k = 500; k < kSteps; k += 450 + 7 * s) y[k] += 80.0;     // spikes
+    if (s % 4 == 1)
+      for (int k = 12000; k < kSteps; ++k) y[k] += 60.0;              // level shift
     series.push_back(std::move(y));
   }
   std::ofstream out(path);
