@@ -36,8 +36,8 @@ struct KafkaSinkOptions {
   std::string bootstrap_servers;  // required unless `properties` carries bootstrap.servers
   Properties properties;          // over ProducerDefaults(); librdkafka's own names
   // Topic per EventKind (index = kind). An empty name disables that kind (counted as disabled).
-  std::array<std::string, kEventKinds> topics = {"plimsoll.flags", "plimsoll.alerts", "plimsoll.model-changes",
-                                                 "plimsoll.dead-letters", "plimsoll.states"};
+  std::array<std::string, kEventKinds> topics = {"plimsoll.flags", "plimsoll.alerts", "plimsoll.models",
+                                                 "plimsoll.dead-letters", "plimsoll.state"};
   // Events queued before librdkafka. Larger rides out longer broker stalls; costs memory
   // (about the JSON size per event).
   size_t queue_capacity = 10000;
