@@ -23,6 +23,7 @@
 #include <vector>
 
 #include "fit/fit_internal.h"
+#include "fit/state_solver.h"
 #include "plimsoll/fit/initial.h"
 
 namespace plimsoll::fit {
@@ -48,6 +49,9 @@ constexpr int kClockEvery = 16;
 // Screening run per extra start: this many evaluations per dimension plus a base.
 constexpr int kScreenPerDim = 8;
 constexpr int kScreenBase = 40;
+// The same for the concentrated search (1-4 dimensions, each evaluation solves for the state).
+constexpr int kProfileScreenPerDim = 4;
+constexpr int kProfileScreenBase = 8;
 // Restarts after the main run, while each still improves -loglik. Each uses a differently
 // sized first trust region (scale of the initial steps): a restart shaped like the run that just
 // stopped tends to stop at the same point, a wider or narrower one often gets past it.
@@ -146,6 +150,8 @@ class Problem {
 
   bool estimate_season() const { return estimate_season_; }
   size_t dim() const { return lower_.size(); }
+  // The smoothing coordinates (alpha, beta, gamma, phi; those estimated) come first.
+  size_t smoothing_dim() const { return static_cast<size_t>(i_level_); }
   const std::vector<double>& lower() const { return lower_; }
   const std::vector<double>& upper() const { return upper_; }
   const std::vector<double>& step() const { return step_; }
@@ -330,8 +336,106 @@ double NoiseScale(std::span<const double> y) {
   return 1.0;
 }
 
-// One BOBYQA run from z; returns how it ended. The best point lives in `problem`.
-StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, double tolerance, double step_scale = 1.0) {
+// The smoothing coordinates of a Problem only: each evaluation decodes the smoothing
+// parameters, lets the StateSolver find the best initial state for them (starting from the
+// heuristic state, so the value depends on the parameters alone) and returns -loglik there.
+// evaluations() counts likelihood passes (plain and tangent), the unit of max_evaluations.
+class Profile {
+ public:
+  Profile(Problem& full, StateSolver& solver, const State& heuristic, int budget, const Clock& clock,
+          int64_t deadline_nanos)
+      : full_(full),
+        solver_(solver),
+        level0_(heuristic.level),
+        trend0_(heuristic.trend),
+        season0_(model::SeasonChronological(heuristic)),
+        budget_(budget),
+        clock_(clock),
+        deadline_nanos_(deadline_nanos),
+        z_(full.dim(), 0.0) {
+    const size_t ns = full.smoothing_dim();
+    lower_.assign(full.lower().begin(), full.lower().begin() + static_cast<std::ptrdiff_t>(ns));
+    upper_.assign(full.upper().begin(), full.upper().begin() + static_cast<std::ptrdiff_t>(ns));
+    step_.assign(full.step().begin(), full.step().begin() + static_cast<std::ptrdiff_t>(ns));
+  }
+
+  size_t dim() const { return lower_.size(); }
+  const std::vector<double>& lower() const { return lower_; }
+  const std::vector<double>& upper() const { return upper_; }
+  const std::vector<double>& step() const { return step_; }
+
+  double Evaluate(const double* zs) {
+    if (deadline_nanos_ > 0 && clock_.MonotonicNanos() > deadline_nanos_) {
+      time_exhausted_ = true;
+      if (running_ != nullptr) running_->force_stop();
+      return kPenalty;
+    }
+    if (passes_ >= budget_) {
+      if (running_ != nullptr) running_->force_stop();
+      return kPenalty;
+    }
+    std::copy(zs, zs + dim(), z_.begin());
+    if (!full_.Decode(z_.data())) return kPenalty;
+    // Non-affine forms need several Gauss-Newton steps; starting from the best state so far
+    // (close to the answer once the search has settled) saves most of them. The affine forms
+    // are solved exactly from any start.
+    const bool warm = !solver_.affine() && !best_z_.empty();
+    double level = warm ? best_level_ : level0_, trend = warm ? best_trend_ : trend0_;
+    season_ = warm ? best_season_ : season0_;
+    double f = solver_.Solve(full_.params(), level, trend, season_, &passes_);
+    if (!(f < kPenalty) && warm) {
+      level = level0_;
+      trend = trend0_;
+      season_ = season0_;
+      f = solver_.Solve(full_.params(), level, trend, season_, &passes_);
+    }
+    if (!(f < kPenalty)) return kPenalty;
+    if (f < best_f_) {
+      best_f_ = f;
+      best_z_.assign(zs, zs + dim());
+      best_params_ = full_.params();
+      best_level_ = level;
+      best_trend_ = trend;
+      best_season_ = season_;
+    }
+    return f;
+  }
+
+  static double Objective(unsigned /*n*/, const double* z, double* /*grad*/, void* data) {
+    return static_cast<Profile*>(data)->Evaluate(z);
+  }
+
+  void set_running(nlopt::opt* opt) { running_ = opt; }
+  int evaluations() const { return passes_; }
+  bool time_exhausted() const { return time_exhausted_; }
+  double best_f() const { return best_f_; }
+  const std::vector<double>& best_z() const { return best_z_; }
+  const Params& best_params() const { return best_params_; }
+  State best_state() const { return model::MakeState(best_level_, best_trend_, best_season_); }
+
+ private:
+  Problem& full_;
+  StateSolver& solver_;
+  double level0_, trend0_;
+  std::vector<double> season0_, season_;
+  int budget_;
+  const Clock& clock_;
+  int64_t deadline_nanos_;
+  std::vector<double> z_, lower_, upper_, step_;
+  int passes_ = 0;
+  bool time_exhausted_ = false;
+  nlopt::opt* running_ = nullptr;
+  double best_f_ = std::numeric_limits<double>::infinity();
+  std::vector<double> best_z_;
+  Params best_params_;
+  double best_level_ = 0, best_trend_ = 0;
+  std::vector<double> best_season_;
+};
+
+// One BOBYQA run from z; returns how it ended. The best point lives in `problem` (a Problem
+// or a Profile).
+template <typename P>
+StopReason RunOnce(P& problem, std::vector<double> z, int max_evals, double tolerance, double step_scale = 1.0) {
   nlopt::opt opt(nlopt::LN_BOBYQA, static_cast<unsigned>(problem.dim()));
   opt.set_lower_bounds(problem.lower());
   opt.set_upper_bounds(problem.upper());
@@ -340,7 +444,7 @@ StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, doubl
     step[i] = std::min(step[i] * step_scale, 0.45 * (problem.upper()[i] - problem.lower()[i]));
   }
   opt.set_initial_step(step);
-  opt.set_min_objective(&Problem::Objective, &problem);
+  opt.set_min_objective(&P::Objective, &problem);
   opt.set_ftol_rel(tolerance);
   opt.set_xtol_rel(1e-9);
   opt.set_maxeval(max_evals);
@@ -352,7 +456,8 @@ StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, doubl
     const nlopt::result r = opt.optimize(z, f);
     if (r == nlopt::MAXEVAL_REACHED) reason = StopReason::kEvaluationBudget;
   } catch (const nlopt::forced_stop&) {
-    reason = StopReason::kTimeBudget;
+    // A Problem stops only for time; a Profile also when its pass budget runs out.
+    reason = problem.time_exhausted() ? StopReason::kTimeBudget : StopReason::kEvaluationBudget;
   } catch (const nlopt::roundoff_limited&) {
     reason = StopReason::kRoundoff;
   } catch (const std::exception&) {
@@ -361,6 +466,64 @@ StopReason RunOnce(Problem& problem, std::vector<double> z, int max_evals, doubl
   problem.set_running(nullptr);
   if (problem.time_exhausted()) reason = StopReason::kTimeBudget;
   return reason;
+}
+
+// Screening runs from each start (when there are several and screen > 0), then the full run
+// from the best point and restarts with a fresh trust region: BOBYQA sometimes stops while its
+// interpolation set is degenerate; a restart that finds nothing costs about 2 dim + 1
+// evaluations. At most kMaxRestarts restarts, while they still improve. The surfaces are often
+// multimodal in (alpha, beta, phi), and a screening run is enough to see which basin a start
+// falls into. The best point lives in `problem`.
+template <typename P>
+StopReason Search(P& problem, std::vector<std::vector<double>>& start_points, int screen, int budget_end,
+                  double tolerance) {
+  StopReason stop = StopReason::kConverged;
+  for (std::vector<double>& z : start_points) {
+    if (problem.Evaluate(z.data()) >= kPenalty) continue;  // infeasible start: try the next
+    if (screen > 0 && start_points.size() > 1) {
+      stop = RunOnce(problem, z, screen, tolerance);
+      if (stop == StopReason::kTimeBudget) break;
+    }
+  }
+  if (problem.best_z().empty() || stop == StopReason::kTimeBudget) return stop;
+  for (int round = 0; round <= kMaxRestarts; ++round) {
+    const int left = budget_end - problem.evaluations();
+    if (left <= 0) return StopReason::kEvaluationBudget;
+    const double before = problem.best_f();
+    stop = RunOnce(problem, problem.best_z(), left, tolerance, kRestartStepScale[static_cast<size_t>(round)]);
+    // A roundoff stop (degenerate interpolation set, common on a flat ridge such as alpha at
+    // its bound) is what the restart is for; budgets end the loop.
+    if (stop == StopReason::kEvaluationBudget || stop == StopReason::kTimeBudget) break;
+    if (round > 0 && !(problem.best_f() < before - 1e-9 * std::fabs(before))) break;
+  }
+  return stop;
+}
+
+// The result at the chosen parameters and initial state, with the likelihood recomputed by the
+// model module (so what is reported is exactly what the model computes).
+Result<FitResult> Finish(const ModelSpec& spec, std::span<const double> y, const FitOptions& options,
+                         const Params& params, const State& initial, StopReason stop, int evaluations,
+                         bool season_estimated, const Clock& clock, int64_t start_nanos) {
+  FitResult out;
+  out.spec = spec;
+  out.seasonal_states_estimated = !spec.has_season() || season_estimated;
+  out.params = params;
+  out.initial_state = initial;
+  auto final_lik = model::EvaluateLikelihood(spec, out.params, out.initial_state, y);
+  if (!final_lik.ok()) return final_lik.status().WithContext(spec.Notation());
+  out.loglik = final_lik->loglik;
+  out.sigma2 = final_lik->sigma2;
+  out.n = final_lik->n;
+  out.final_state = std::move(final_lik->final_state);
+  out.final_state.sigma2 = out.sigma2;
+  out.initial_state.sigma2 = out.sigma2;
+  out.k = CountEstimated(spec, options);
+  out.criteria = model::Criteria(out.loglik, out.n, out.k);
+  out.stop = stop;
+  out.converged = stop == StopReason::kConverged;
+  out.evaluations = evaluations;
+  out.seconds = static_cast<double>(clock.MonotonicNanos() - start_nanos) * 1e-9;
+  return out;
 }
 
 }  // namespace
@@ -442,6 +605,30 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
   if (problem.alpha_range_empty()) {
     return Status::InvalidArgument(spec.Notation() + ": the fixed beta/gamma and the alpha range leave no room for alpha");
   }
+  const int starts = std::min<int>(options.starts, static_cast<int>(kStarts.size()));
+  if (options.region == model::ParamRegion::kUsual && StateSolver::Supports(spec) && problem.smoothing_dim() > 0) {
+    // Concentrated search: the optimiser sees only the smoothing parameters; the initial state
+    // is solved for at each of their values.
+    StateSolver solver(spec, y, problem.estimate_season());
+    Profile profile(problem, solver, *heuristic, options.max_evaluations, clock, deadline);
+    std::vector<std::vector<double>> start_points;
+    for (int s = 0; s < starts; ++s) {
+      std::vector<double> z = problem.StartPoint(kStarts[static_cast<size_t>(s)]);
+      z.resize(problem.smoothing_dim());
+      start_points.push_back(std::move(z));
+    }
+    // Screening as for the full search, shorter for seasonal forms, whose evaluations cost
+    // ~20 times more (p ~ m states in the solve).
+    const int screen = problem.estimate_season()
+                           ? kProfileScreenPerDim * static_cast<int>(profile.dim()) + kProfileScreenBase
+                           : kScreenPerDim * static_cast<int>(profile.dim()) + kScreenBase;
+    const StopReason stop = Search(profile, start_points, screen, options.max_evaluations, options.relative_tolerance);
+    if (profile.best_z().empty()) {
+      return Status::NumericFailure(spec.Notation() + ": no start point has a finite likelihood");
+    }
+    return Finish(spec, y, options, profile.best_params(), profile.best_state(), stop, profile.evaluations(),
+                  problem.estimate_season(), clock, start_nanos);
+  }
 
   std::vector<std::vector<double>> start_points;
   int usual_evaluations = 0;
@@ -461,7 +648,6 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
       }
     }
   }
-  const int starts = std::min<int>(options.starts, static_cast<int>(kStarts.size()));
   bool screened = false;
   int screening_evaluations = 0;  // counted in the budget of this fit
   if (starts > 1 && problem.estimate_season()) {
@@ -488,67 +674,21 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
     for (int s = 0; s < starts; ++s) start_points.push_back(problem.StartPoint(kStarts[static_cast<size_t>(s)]));
   }
 
-  FitResult out;
-  out.spec = spec;
-  out.seasonal_states_estimated = !spec.has_season() || problem.estimate_season();
-  StopReason stop = StopReason::kConverged;
-  // Several starts (non-seasonal forms, and seasonal ones not screened above): each gets a short
-  // screening run; the full run continues from the best point any of them reached. The surfaces
-  // are often multimodal in (alpha, beta, phi), and a screening run is enough to see which
-  // basin a start falls into.
   const int screen = start_points.size() > 1
                          ? std::min(options.max_evaluations / static_cast<int>(2 * start_points.size()),
                                     kScreenPerDim * static_cast<int>(problem.dim()) + kScreenBase)
                          : 0;
-  for (std::vector<double>& z : start_points) {
-    if (problem.Evaluate(z.data()) >= kPenalty) continue;  // infeasible start: try the next
-    if (screen > 0) {
-      stop = RunOnce(problem, z, screen, options.relative_tolerance);
-      if (stop == StopReason::kTimeBudget) break;
-    }
-  }
-  // Full run from the best point, then restarts with a fresh trust region: BOBYQA sometimes
-  // stops while its interpolation set is degenerate; a restart that finds nothing costs about
-  // 2 dim + 1 evaluations. At most kMaxRestarts restarts, while they still improve.
-  if (!problem.best_z().empty() && stop != StopReason::kTimeBudget) {
-    const int budget_end = options.max_evaluations - screening_evaluations;
-    for (int round = 0; round <= kMaxRestarts; ++round) {
-      const int left = budget_end - problem.evaluations();
-      if (left <= 0) {
-        stop = StopReason::kEvaluationBudget;
-        break;
-      }
-      const double before = problem.best_f();
-      stop = RunOnce(problem, problem.best_z(), left, options.relative_tolerance, kRestartStepScale[round]);
-      // A roundoff stop (degenerate interpolation set, common on a flat ridge such as alpha at
-      // its bound) is what the restart is for; budgets end the loop.
-      if (stop == StopReason::kEvaluationBudget || stop == StopReason::kTimeBudget) break;
-      if (round > 0 && !(problem.best_f() < before - 1e-9 * std::fabs(before))) break;
-    }
-  }
+  const StopReason stop = Search(problem, start_points, screen, options.max_evaluations - screening_evaluations,
+                                 options.relative_tolerance);
   if (problem.best_z().empty()) {
     return Status::NumericFailure(spec.Notation() + ": no start point has a finite likelihood");
   }
   if (!problem.Decode(problem.best_z().data())) {
     return Status::Internal(spec.Notation() + ": best point does not decode");
   }
-  out.params = problem.params();
-  out.initial_state = problem.state();
-  auto final_lik = model::EvaluateLikelihood(spec, out.params, out.initial_state, y);
-  if (!final_lik.ok()) return final_lik.status().WithContext(spec.Notation());
-  out.loglik = final_lik->loglik;
-  out.sigma2 = final_lik->sigma2;
-  out.n = final_lik->n;
-  out.final_state = std::move(final_lik->final_state);
-  out.final_state.sigma2 = out.sigma2;
-  out.initial_state.sigma2 = out.sigma2;
-  out.k = CountEstimated(spec, options);
-  out.criteria = model::Criteria(out.loglik, out.n, out.k);
-  out.stop = stop;
-  out.converged = stop == StopReason::kConverged;
-  out.evaluations = usual_evaluations + screening_evaluations + problem.evaluations();
-  out.seconds = static_cast<double>(clock.MonotonicNanos() - start_nanos) * 1e-9;
-  return out;
+  return Finish(spec, y, options, problem.params(), problem.state(), stop,
+                usual_evaluations + screening_evaluations + problem.evaluations(), problem.estimate_season(),
+                clock, start_nanos);
 }
 
 Result<FitResult> FitModel(const ModelSpec& spec, std::span<const double> y, const FitOptions& options,

@@ -1,0 +1,61 @@
+#pragma once
+// Concentrating the initial state out of the likelihood (internal to the fit module).
+//
+// For fixed smoothing parameters, the best initial state (level, trend, m - 1 free seasonal
+// states) is found by Gauss-Newton on the concentrated -loglik, with the Jacobian of the
+// innovations with respect to the initial state propagated through the recursion (tangent-linear
+// pass, O(n p) for p free states) and a backtracking line search on model::EvaluateLikelihood.
+// For additive error with additive trend and season the innovations are affine in the initial
+// state, so one full step is the exact least-squares optimum; otherwise (relative errors,
+// multiplicative season) a few steps converge. The optimiser then only searches the 1-4
+// smoothing parameters.
+//
+// Thread-safety: one solver per fit (it owns scratch space); no shared state.
+
+#include <span>
+#include <vector>
+
+#include "plimsoll/model/params.h"
+#include "plimsoll/model/spec.h"
+#include "plimsoll/model/state.h"
+
+namespace plimsoll::fit {
+
+class StateSolver {
+ public:
+  // True for the forms the tangent pass implements: trend N/A/Ad, season N/A/M, either error.
+  static bool Supports(const model::ModelSpec& spec);
+
+  // True when the innovations are affine in the state (additive error, additive components):
+  // Solve is then exact in one step whatever the starting state.
+  bool affine() const;
+
+  // REQUIRES Supports(spec); y outlives the solver. With estimate_season false the seasonal
+  // states are held at their starting values (only level and trend are solved for).
+  StateSolver(const model::ModelSpec& spec, std::span<const double> y, bool estimate_season);
+
+  // Improves `state` (level, trend, season in chronological order, normalised) for `params` in
+  // place and returns the -loglik there; +infinity when the starting state is infeasible.
+  // Likelihood passes (tangent and plain) are added to *passes.
+  double Solve(const model::Params& params, double& level, double& trend, std::vector<double>& season_chrono,
+               int* passes);
+
+ private:
+  // -loglik at the given state, +infinity when infeasible.
+  double Objective(const model::Params& params, double level, double trend, const std::vector<double>& season);
+  // Fills jacobian_ (rows = observations, p columns), residuals_ and grad_log_mu_.
+  bool Tangents(const model::Params& params, double level, double trend, const std::vector<double>& season);
+
+  model::ModelSpec spec_;
+  std::span<const double> y_;
+  bool estimate_season_;
+  int p_ = 0;       // free state coordinates
+  int n_obs_ = 0;   // non-missing observations
+  std::vector<double> jacobian_;      // n_obs x p, row-major: d residual_t / d state
+  std::vector<double> residuals_;     // n_obs
+  std::vector<double> grad_log_mu_;   // p: d sum log mu_t / d state (relative error only)
+  std::vector<double> t_level_, t_trend_, t_season_, d_lp_, d_mu_, d_scaled_, d_e_;
+  std::vector<double> season_work_, trial_season_;
+};
+
+}  // namespace plimsoll::fit
