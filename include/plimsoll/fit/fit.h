@@ -3,9 +3,12 @@
 // over a candidate set.
 //
 // The objective is -loglik from model::EvaluateLikelihood (concentrated Gaussian likelihood),
-// minimised with NLopt's BOBYQA (bounded, derivative-free, quadratic trust-region models; see
-// src/fit/fit.cc for why) over the smoothing parameters, phi and the initial states (level,
-// trend, m-1 seasonal states; the m-th follows from the normalisation). In the usual region the
+// minimised over the smoothing parameters, phi and the initial states (level, trend, m-1
+// seasonal states; the m-th follows from the normalisation). For trends N/A/Ad (the default
+// candidates) NLopt's BOBYQA searches the smoothing parameters only and the best initial state
+// for each of their values is solved for (Gauss-Newton, exact in one step for additive error
+// with additive components; src/fit/state_solver.h); other forms and the admissible region
+// search everything with BOBYQA (see src/fit/fit.cc for why BOBYQA). In the usual region the
 // search runs on boxes: alpha, beta* = beta / alpha, gamma* = gamma / (1 - alpha) each in
 // [1e-4, 1 - 1e-4] and phi in [0.8, 0.98], the bounds the reference library uses.
 //
@@ -53,9 +56,11 @@ struct FitOptions {
   // Seasonal initial states are estimated only for m <= this; above it they stay at the
   // heuristic values (each one costs a dimension; the result says so). Validated >= 2.
   int max_estimated_season = 24;
-  // Likelihood evaluations allowed per form, over all starts and restarts. Trade-off: more is
-  // closer to the optimum on hard surfaces (seasonal forms with alpha at its bound can take
-  // several thousand), fewer is faster. Validated >= 10.
+  // Passes over the history allowed per form (likelihood evaluations and the initial-state
+  // solve's sensitivity passes; see FitResult::evaluations), over all starts and restarts.
+  // Trade-off: more is closer to the optimum on hard surfaces (a seasonal form searched in full
+  // can take several thousand; with the state solved for, a few hundred to ~1500), fewer is
+  // faster. Validated >= 10.
   int max_evaluations = 10000;
   // Wall time allowed per form in seconds (0 = no limit). A fit that hits it keeps its best
   // point and reports "time budget". Makes results depend on machine speed when it binds.
@@ -100,7 +105,8 @@ struct FitResult {
   bool converged = false;
   StopReason stop = StopReason::kConverged;
   bool seasonal_states_estimated = true;  // false when m > max_estimated_season (heuristic kept)
-  int evaluations = 0;         // likelihood evaluations
+  int evaluations = 0;         // passes over the history: likelihood evaluations, plus
+                               // sensitivity passes of the initial-state solve
   double seconds = 0.0;        // wall time of this fit
 };
 
