@@ -360,7 +360,7 @@ Status ReadProfile(const TableReader& r, const Config& c, ProfileOptions& p) {
   PLIMSOLL_RETURN_IF_ERROR(ReadForms(r, p.period, p.forms));
   PLIMSOLL_RETURN_IF_ERROR(r.Level("band", p.band));
   p.history = std::max(1000, 10 * p.period);
-  p.warmup = std::max(20, 3 * p.period);
+  p.warmup = std::max(20, 5 * p.period);  // 3 periods left alpha at its bound on drifting levels
   PLIMSOLL_RETURN_IF_ERROR(r.Int("history", p.history, 10, 10'000'000));
   PLIMSOLL_RETURN_IF_ERROR(r.Int("warmup", p.warmup, 3, 10'000'000));
   if (p.period > 1 && p.warmup < 2 * p.period) {

@@ -340,9 +340,8 @@ EngineOptions EngineOptionsFromConfig(const Config& config) {
     r.period = p.period;
     r.forms = p.forms;
     r.band_level = p.band;
-    r.history = p.history > 0 ? p.history : std::max(1000, 10 * p.period);
-    r.warmup = p.warmup > 0 ? p.warmup : std::max(20, 3 * p.period);
-    r.history = std::max(r.history, r.warmup);
+    r.history = p.history;  // the config resolved period-dependent defaults and checked warmup <= history
+    r.warmup = p.warmup;
     r.policy = p.policy;
     r.breach_run = config.band.breach_run;
     r.breach_window = config.band.breach_window > 0 ? config.band.breach_window : config.band.breach_run;
@@ -360,8 +359,7 @@ DaemonOptions DaemonOptionsFromConfig(const Config& config) {
   // A file is a replay: its own times drive bucket closing, so reruns give identical results.
   out.event_time = config.source.kind == SourceKind::kFile;
   int longest_history = 0;
-  for (const ProfileOptions& p : config.profiles)
-    longest_history = std::max(longest_history, p.history > 0 ? p.history : std::max(1000, 10 * p.period));
+  for (const ProfileOptions& p : config.profiles) longest_history = std::max(longest_history, p.history);
   out.history_restore_points = longest_history;
   return out;
 }

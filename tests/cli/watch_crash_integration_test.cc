@@ -36,7 +36,7 @@ void WriteFeed(const std::string& path) {
   for (int s = 0; s < kSeries; ++s) {
     model::ModelSpec spec{s % 2 ? model::ErrorType::kMultiplicative : model::ErrorType::kAdditive,
                           model::TrendType::kNone, model::SeasonType::kAdditive, 24};
-    model::Params params{0.2, 0.0, 0.1, 1.0};
+    model::Params params{0.2, 0.0, 0.01, 1.0};  // a stable daily profile: one warm-up fit stays valid
     std::vector<double> season(24);
     for (int k = 0; k < 24; ++k) season[k] = 20.0 * std::sin(2 * M_PI * k / 24.0);
     model::State init = model::MakeState(200.0 + s, 0.0, season);
@@ -64,7 +64,7 @@ void WriteConfig(const std::string& path, const std::string& feed, const std::st
   out << "[source]\nkind = \"file\"\npath = \"" << feed << "\"\n"
       << "[store]\npath = \"" << db << "\"\ncommit_ms = 50\n"
       << "[logging]\nlevel = \"warn\"\n"
-      << "[[profile]]\nmatch = \"feed-*\"\ninterval = \"1h\"\nperiod = 24\nwarmup = 72\nhistory = 500\n"
+      << "[[profile]]\nmatch = \"feed-*\"\ninterval = \"1h\"\nperiod = 24\nwarmup = 120\nhistory = 500\n"
       << "forms = [\"ANA\", \"MNA\", \"AAdA\"]\n";
 }
 

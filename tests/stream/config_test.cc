@@ -121,7 +121,7 @@ refit_max_age = "none"
 TEST_CASE("profile defaults scale with the period", "[stream]") {
   Config c = Parse("[[profile]]\nperiod = 168\n");
   CHECK(c.profiles[0].history == 1680);
-  CHECK(c.profiles[0].warmup == 504);
+  CHECK(c.profiles[0].warmup == 840);
 }
 
 TEST_CASE("first matching profile wins and unmatched series get -1", "[stream]") {

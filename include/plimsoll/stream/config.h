@@ -102,7 +102,7 @@ struct ProfileOptions {
   double band = 0.99;                  // interval level; defaults to [band].level
   int history = 0;                     // points kept for refits; default max(1000, 10 x period)
   AggregateKind aggregate = AggregateKind::kNone;  // needs an interval
-  int warmup = 0;                      // points before the first fit; default max(20, 3 x period)
+  int warmup = 0;                      // points before the first fit; default max(20, 5 x period)
   std::optional<int64_t> max_gap_ms = int64_t{7} * 86'400'000;  // longer gaps re-seed; nullopt: never
   int64_t allowed_lateness_ms = 0;     // aggregate only: a bucket closes at its end + this
   FlagPolicy policy = FlagPolicy::kClip;  // defaults to [band].policy
