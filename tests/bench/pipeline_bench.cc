@@ -1,0 +1,270 @@
+// The full Kafka pipeline against the plain consumer, in one run on the embedded broker:
+//  1. N small JSON records (kafka_bench_util.h) are produced once; a plain librdkafka consumer
+//     reads them (no processing): consume_records_per_s.
+//  2. The daemon (in this process, as `watch` wires it: KafkaSource, decode, engine update + flag,
+//     write-behind SQLite group commit with positions in a temp file, KafkaSink outputs) reads the
+//     same records. Fitting is kept out of the measurement: forms are fixed (one form), warm-up is
+//     20 points, and the clock starts at the first durable commit past a warm-up prefix of 30 steps
+//     per series; it stops when the positions of all N records are durable: pipeline_records_per_s.
+//  3. Latency: a producer offers records at a fixed 50k records/s (record time = produce wall time,
+//     ms) to a second topic the daemon also reads; each flag's record time is compared with the wall
+//     time its durable batch reaches the daemon's output sink: latency_p50_ms, latency_p99_ms.
+#include <librdkafka/rdkafka.h>
+#include <spdlog/spdlog.h>
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <filesystem>
+#include <map>
+#include <mutex>
+#include <string>
+#include <thread>
+#include <vector>
+#include <unistd.h>
+
+#include "bench/bench.h"
+#include "bench/kafka_bench_util.h"
+#include "cli/daemon_setup.h"
+#include "cli/sources.h"
+#include "plimsoll/kafka/embedded_broker.h"
+#include "plimsoll/stream/config.h"
+#include "plimsoll/stream/daemon.h"
+#include "plimsoll/stream/decode.h"
+
+namespace plimsoll::bench {
+namespace {
+
+namespace fs = std::filesystem;
+
+int64_t WallMs() {
+  return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::system_clock::now().time_since_epoch())
+      .count();
+}
+
+// Wraps the daemon's Kafka output sink: notes when positions become durable and how old each
+// durable flag of the latency phase is.
+class TimingSink final : public stream::OutputSink {
+ public:
+  TimingSink(stream::OutputSink* inner, const std::string& throughput_stream, int64_t warm_records,
+             int64_t total_records)
+      : inner_(inner), stream_(throughput_stream), warm_(warm_records), total_(total_records) {}
+
+  Status Publish(const store::CommitBatch& durable) override {
+    const int64_t now_ms = WallMs();
+    const auto now = std::chrono::steady_clock::now();
+    std::lock_guard<std::mutex> lock(mu_);
+    for (const store::PositionRecord& p : durable.positions)
+      if (p.stream == stream_) positions_[p.partition] = p.next_offset;
+    int64_t sum = 0;
+    for (const auto& [partition, next] : positions_) sum += next;
+    if (start_records_ < 0 && sum >= warm_) {
+      start_records_ = sum;
+      start_ = now;
+    }
+    if (sum >= total_ && end_records_ < 0) {
+      end_records_ = sum;
+      end_ = now;
+    }
+    const int64_t since = latency_since_ms_.load();
+    if (since > 0)
+      for (const store::FlagRecord& f : durable.flags)
+        if (f.time_ms >= since) latencies_ms_.push_back(static_cast<double>(now_ms - f.time_ms));
+    return inner_ != nullptr ? inner_->Publish(durable) : Status::Ok();
+  }
+
+  bool Done() const {
+    std::lock_guard<std::mutex> lock(mu_);
+    return end_records_ >= 0;
+  }
+  double Rate() const {
+    std::lock_guard<std::mutex> lock(mu_);
+    const double seconds = std::chrono::duration<double>(end_ - start_).count();
+    return seconds > 0 ? static_cast<double>(end_records_ - start_records_) / seconds : 0;
+  }
+  int64_t MeasuredRecords() const {
+    std::lock_guard<std::mutex> lock(mu_);
+    return end_records_ - start_records_;
+  }
+  void StartLatency(int64_t since_ms) { latency_since_ms_.store(since_ms); }
+  std::vector<double> Latencies() const {
+    std::lock_guard<std::mutex> lock(mu_);
+    return latencies_ms_;
+  }
+
+ private:
+  stream::OutputSink* inner_;
+  std::string stream_;
+  int64_t warm_, total_;
+  mutable std::mutex mu_;
+  std::map<int32_t, int64_t> positions_;
+  int64_t start_records_ = -1, end_records_ = -1;
+  std::chrono::steady_clock::time_point start_, end_;
+  std::atomic<int64_t> latency_since_ms_{0};
+  std::vector<double> latencies_ms_;
+};
+
+// Offers records at `rate` per second for `seconds` (time = produce wall time in ms), keyed by series.
+Status OfferAtRate(const std::string& bootstrap, const std::string& topic, int series, int rate, double seconds,
+                   int64_t* offered) {
+  char err[512];
+  rd_kafka_conf_t* conf = rd_kafka_conf_new();
+  if (rd_kafka_conf_set(conf, "bootstrap.servers", bootstrap.c_str(), err, sizeof(err)) != RD_KAFKA_CONF_OK ||
+      rd_kafka_conf_set(conf, "linger.ms", "1", err, sizeof(err)) != RD_KAFKA_CONF_OK) {
+    rd_kafka_conf_destroy(conf);
+    return Status::InvalidArgument(err);
+  }
+  rd_kafka_t* producer = rd_kafka_new(RD_KAFKA_PRODUCER, conf, err, sizeof(err));
+  if (producer == nullptr) return Status::Unavailable(err);
+  const auto begin = std::chrono::steady_clock::now();
+  const int64_t total = static_cast<int64_t>(rate * seconds);
+  std::vector<int64_t> last_time(static_cast<size_t>(series), 0);
+  int64_t sent = 0;
+  Status status;
+  while (sent < total) {
+    const double elapsed = std::chrono::duration<double>(std::chrono::steady_clock::now() - begin).count();
+    const int64_t due = std::min<int64_t>(total, static_cast<int64_t>(elapsed * rate) + 1);
+    for (; sent < due; ++sent) {
+      const int s = static_cast<int>(sent % series);
+      // Strictly increasing times per series (a series gets a record every series/rate seconds).
+      const int64_t t = std::max(WallMs(), last_time[static_cast<size_t>(s)] + 1);
+      last_time[static_cast<size_t>(s)] = t;
+      const std::string key = "s" + std::to_string(s);
+      const std::string value = "{\"series\":\"" + key + "\",\"time\":" + std::to_string(t) +
+                                ",\"value\":" + std::to_string(100 + (sent * 7919) % 997) + ".25}";
+      rd_kafka_resp_err_t e = rd_kafka_producev(producer, RD_KAFKA_V_TOPIC(topic.c_str()),
+                                                RD_KAFKA_V_MSGFLAGS(RD_KAFKA_MSG_F_COPY),
+                                                RD_KAFKA_V_KEY(key.data(), key.size()),
+                                                RD_KAFKA_V_VALUE(const_cast<char*>(value.data()), value.size()),
+                                                RD_KAFKA_V_END);
+      if (e == RD_KAFKA_RESP_ERR__QUEUE_FULL) {
+        rd_kafka_poll(producer, 1);
+        --sent;
+        continue;
+      }
+      if (e != RD_KAFKA_RESP_ERR_NO_ERROR) status = Status::Unavailable(rd_kafka_err2str(e));
+    }
+    rd_kafka_poll(producer, 0);
+    std::this_thread::sleep_for(std::chrono::microseconds(500));
+  }
+  rd_kafka_flush(producer, 10000);
+  rd_kafka_destroy(producer);
+  *offered = sent;
+  return status;
+}
+
+double Percentile(std::vector<double> v, double q) {
+  if (v.empty()) return -1;
+  std::sort(v.begin(), v.end());
+  const size_t i = std::min(v.size() - 1, static_cast<size_t>(q * static_cast<double>(v.size())));
+  return v[i];
+}
+
+BenchReport RunPipelineBench(const BenchArgs& args) {
+  const int64_t records = args.quick ? 50'000 : 1'000'000;
+  const int series = args.quick ? 100 : 1000;
+  const int64_t warm_records = 30LL * series;
+  const double latency_seconds = args.quick ? 2.0 : 6.0;
+  constexpr int kOfferedRate = 50'000;
+  const int partitions = 4;
+  const std::string topic = "bench.pipeline";
+  const std::string latency_topic = "bench.latency";
+  BenchReport report;
+  const auto fail = [&](const Status& s) {
+    report.Add("error", s.ToString());
+    return report;
+  };
+
+  auto level = spdlog::get_level();
+  spdlog::set_level(spdlog::level::warn);  // keep start-up lines off the report
+  kafka::EmbeddedBrokerOptions options;
+  options.topics.push_back({topic, partitions});
+  options.topics.push_back({latency_topic, partitions});
+  for (const char* out : {"bench.flags", "bench.alerts", "bench.models"}) options.topics.push_back({out, partitions});
+  auto broker = kafka::EmbeddedBroker::Start(options);
+  if (!broker.ok()) return fail(broker.status());
+  const std::string bootstrap = (*broker)->BootstrapServers();
+
+  auto produced = ProduceJsonRecords(bootstrap, topic, records, series);
+  if (!produced.ok()) return fail(produced.status());
+  auto consumed = MeasurePlainConsume(bootstrap, topic, partitions, records);
+  if (!consumed.ok()) return fail(consumed.status());
+
+  const fs::path dir = fs::temp_directory_path() / ("plimsoll-pipeline-bench-" + std::to_string(getpid()));
+  fs::remove_all(dir);
+  fs::create_directories(dir);
+  const std::string toml =
+      "[source]\nkind = \"kafka\"\n[source.kafka]\ntopics = [\"" + topic + "\", \"" + latency_topic +
+      "\"]\ngroup = \"bench-pipeline\"\n[source.kafka.properties]\n\"bootstrap.servers\" = \"" + bootstrap +
+      "\"\n\"session.timeout.ms\" = 6000\n\"heartbeat.interval.ms\" = 1000\n"
+      "[sink]\nflags_topic = \"bench.flags\"\nalerts_topic = \"bench.alerts\"\nmodels_topic = \"bench.models\"\n"
+      "[store]\npath = \"" + (dir / "bench.db").string() + "\"\ncommit_ms = 100\n"
+      "[[profile]]\nmatch = \"*\"\nwarmup = 20\nhistory = 200\nband = 0.9\nforms = [\"ANN\"]\n";
+  auto config = stream::ParseConfig(toml, "pipeline bench");
+  if (!config.ok()) return fail(config.status());
+  auto daemon = cli::OpenDaemon(*config, SystemClock());
+  if (!daemon.ok()) return fail(daemon.status());
+  auto opened = cli::OpenSource(*config, **daemon);
+  if (!opened.ok()) return fail(opened.status());
+  TimingSink timing(opened->sink.get(), "kafka:" + topic, warm_records, records);
+  stream::RecordDecoder decoder(config->source.decode);
+  std::atomic<bool> stop{false};
+  Status run;
+  std::thread owner([&] { run = (*daemon)->Run(*opened->source, decoder, stop, &timing); });
+
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(300);
+  while (!timing.Done() && std::chrono::steady_clock::now() < deadline)
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  const bool done = timing.Done();
+
+  int64_t offered = 0;
+  Status offer;
+  if (done) {
+    const int64_t since = WallMs();
+    timing.StartLatency(since);
+    offer = OfferAtRate(bootstrap, latency_topic, series, kOfferedRate, latency_seconds, &offered);
+    std::this_thread::sleep_for(std::chrono::milliseconds(1000));  // the last commits
+  }
+  stop.store(true);
+  owner.join();
+  const uint64_t fits = (*daemon)->engine().counters().fits;
+  const uint64_t flags = (*daemon)->engine().counters().flags;
+  opened->source.reset();
+  opened->sink.reset();
+  daemon->reset();
+  fs::remove_all(dir);
+  spdlog::set_level(level);
+  if (!done) return fail(Status::Unavailable("the pipeline did not make all records durable within 300 s"));
+  if (!run.ok()) return fail(run);
+  if (!offer.ok()) return fail(offer);
+
+  const std::vector<double> latencies = timing.Latencies();
+  report.Add("records", records);
+  report.Add("series", static_cast<int64_t>(series));
+  report.Add("partitions", static_cast<int64_t>(partitions));
+  report.Add("consume_records_per_s", consumed->records_per_s);
+  report.Add("pipeline_records_per_s", timing.Rate());
+  report.Add("pipeline_ratio", timing.Rate() / consumed->records_per_s);
+  report.Add("pipeline_measured_records", timing.MeasuredRecords());
+  report.Add("fits", static_cast<int64_t>(fits));
+  report.Add("flags", static_cast<int64_t>(flags));
+  report.Add("latency_offered_records_per_s", static_cast<int64_t>(kOfferedRate));
+  report.Add("latency_offered_records", offered);
+  report.Add("latency_flags", static_cast<int64_t>(latencies.size()));
+  report.Add("latency_p50_ms", Percentile(latencies, 0.50));
+  report.Add("latency_p99_ms", Percentile(latencies, 0.99));
+  report.Add("commit_ms", static_cast<int64_t>(100));
+  report.notes.push_back("embedded broker (in-process mock cluster over loopback); records produced before both reads");
+  report.notes.push_back("pipeline: KafkaSource + decode + update + flag + SQLite group commit (temp file, commit_ms "
+                         "100) + KafkaSink; one fixed form (ANN), warm-up 20; timed from the first durable commit "
+                         "past 30 steps per series (fits done) to all positions durable");
+  report.notes.push_back("latency: record time = produce wall time (ms); measured when the flag's batch is durable "
+                         "(OutputSink); band 0.9 so about 10% of records are flagged");
+  return report;
+}
+
+PLIMSOLL_BENCH("pipeline", "Kafka pipeline rate vs plain consume, and produce-to-durable-flag latency at 50k/s",
+               RunPipelineBench);
+
+}  // namespace
+}  // namespace plimsoll::bench
