@@ -216,14 +216,27 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   double f = Objective(params, level, trend, season);
   ++*passes;
   if (!std::isfinite(f)) return kInf;
+  // The Hessian J'J (O(n p^2), the dearest part) is formed at the first step and reused by the
+  // later (chord) steps while full steps are accepted: near the optimum it changes little
+  // between steps, and the line search guards the rest.
+  Eigen::LDLT<Eigen::MatrixXd, Eigen::Lower> factor;
+  bool refresh = true;
   for (int step_count = 0; step_count < kMaxSteps; ++step_count) {
     ++*passes;
     if (!Tangents(params, level, trend, season)) break;
     Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>> jac(jacobian_.data(),
                                                                                               n_obs_, p);
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
-    Eigen::MatrixXd h = Eigen::MatrixXd::Zero(p, p);
-    h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
+    if (refresh) {
+      Eigen::MatrixXd h = Eigen::MatrixXd::Zero(p, p);
+      h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
+      // A tiny ridge keeps the solve defined when a direction is (nearly) unidentified, e.g. a
+      // trend and a seasonal ramp on a short history.
+      const double ridge = 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
+      h.diagonal().array() += ridge;
+      factor.compute(h);
+      refresh = false;
+    }
     // Gradient of n/2 log S (+ sum log mu) scaled by S/n, and the Gauss-Newton Hessian J'J on
     // the same scale.
     Eigen::VectorXd g = jac.transpose() * r;
@@ -231,11 +244,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
       const double scale = r.squaredNorm() / n_obs_;
       for (Eigen::Index i = 0; i < p; ++i) g[i] += scale * grad_log_mu_[static_cast<size_t>(i)];
     }
-    // A tiny ridge keeps the solve defined when a direction is (nearly) unidentified, e.g. a
-    // trend and a seasonal ramp on a short history.
-    const double ridge = 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
-    h.diagonal().array() += ridge;
-    const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(g));
+    const Eigen::VectorXd delta = -factor.solve(g);
     if (!delta.allFinite()) break;
     // The Gauss-Newton model's predicted decrease of -loglik, (n/S) g'H^-1 g / 2: when it is
     // below the tolerance the state is converged and the line search is skipped.
@@ -255,6 +264,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
       }
     }
     if (!accepted) break;
+    if (lambda < 1.0) refresh = true;
     const double gain = f - f_new;
     f = f_new;
     level = new_level;
