@@ -21,7 +21,7 @@ void AddFitFlags(CLI::App& verb, FitFlags& f) {
   verb.add_option("--gamma", f.gamma, "fix or bound gamma (state-space convention, gamma < 1 - alpha)");
   verb.add_option("--phi", f.phi, "fix or bound the damping factor phi (default range 0.8:0.98)");
   verb.add_option("--starts", f.starts, "optimiser starts per form (1-6)");
-  verb.add_option("--max-evals", f.max_evaluations, "likelihood evaluations allowed per form");
+  verb.add_option("--max-evals", f.max_evaluations, "passes over the history allowed per form (likelihood and state-solve passes)");
 }
 
 Result<FitInput> LoadFitInput(const FitFlags& f) {

@@ -1,0 +1,94 @@
+#include "stream/commit_writer.h"
+
+#include <catch2/catch.hpp>
+#include <filesystem>
+#include <string>
+
+namespace plimsoll::stream {
+namespace {
+
+namespace fs = std::filesystem;
+
+struct TempStore {
+  TempStore() {
+    dir = fs::temp_directory_path() / ("plimsoll-writer-" + std::to_string(::getpid()) + "-" + std::to_string(++count));
+    fs::remove_all(dir);
+    fs::create_directories(dir);
+  }
+  ~TempStore() { fs::remove_all(dir); }
+  std::unique_ptr<store::Store> Open(bool read_only = false) const {
+    store::StoreOptions options;
+    options.path = (dir / "w.db").string();
+    options.read_only = read_only;
+    auto opened = store::Store::Open(options);
+    REQUIRE(opened.ok());
+    return std::move(opened).value();
+  }
+  fs::path dir;
+  static inline int count = 0;
+};
+
+store::CommitBatch Batch(int i) {
+  store::CommitBatch b;
+  if (i == 0) b.series.push_back({"s", "*", 0});
+  b.states.push_back({"s", i, i * 1000, "state-" + std::to_string(i)});
+  b.positions.push_back({"file:/x", 0, i + 1});
+  return b;
+}
+
+}  // namespace
+
+TEST_CASE("the writer hands batches back in order once durable", "[stream]") {
+  TempStore temp;
+  CommitWriter writer(temp.Open(), SystemClock());
+  std::vector<int64_t> durable_positions;
+  for (int i = 0; i < 20; ++i) {
+    writer.Submit(Batch(i));  // waits while the previous batch is in flight
+    while (auto done = writer.TakeDurable()) durable_positions.push_back(done->positions[0].next_offset);
+  }
+  while (writer.busy()) {
+    REQUIRE(writer.WaitDurable(5'000).ok());
+    while (auto done = writer.TakeDurable()) durable_positions.push_back(done->positions[0].next_offset);
+  }
+  while (auto done = writer.TakeDurable()) durable_positions.push_back(done->positions[0].next_offset);
+  REQUIRE(durable_positions.size() == 20);
+  for (int i = 0; i < 20; ++i) CHECK(durable_positions[i] == i + 1);
+  CHECK(writer.counters().batches.load() == 20);
+  writer.Stop();
+  auto reader = temp.Open(/*read_only=*/true);
+  CHECK(reader->StoredPosition("file:/x", 0) == 20);
+  CHECK(reader->GetSeries("s")->state->encoded == "state-19");
+}
+
+TEST_CASE("a failing commit is retried until it lands and never dropped", "[stream]") {
+  TempStore temp;
+  auto store = temp.Open();
+  store->TEST_FailNextCommitAfterRows(1, Status::IoError("injected: disk full"));
+  CommitWriter writer(std::move(store), SystemClock());
+  writer.Submit(Batch(0));
+  REQUIRE(writer.WaitDurable(10'000).ok());
+  auto done = writer.TakeDurable();
+  REQUIRE(done.has_value());
+  CHECK(done->positions[0].next_offset == 1);
+  CHECK(writer.counters().failed_attempts.load() == 1);
+  CHECK(writer.StoreCounters().commit_failures == 1);
+  writer.Stop();
+  CHECK(temp.Open(true)->StoredPosition("file:/x", 0) == 1);
+}
+
+TEST_CASE("stopping with a batch unwritten leaves its positions unstored", "[stream]") {
+  TempStore temp;
+  auto store = temp.Open();
+  REQUIRE(store->TEST_LimitPages(1).ok());  // the file may not grow: commits fail as on a full disk
+  CommitWriter writer(std::move(store), SystemClock());
+  store::CommitBatch big = Batch(0);
+  for (int64_t step = 0; step < 100'000; ++step) big.history.push_back({"s", step, 1.0});  // needs new pages
+  writer.Submit(std::move(big));
+  Status waited = writer.WaitDurable(300);
+  CHECK(waited.code() == StatusCode::kUnavailable);
+  CHECK(waited.message().find("not durable") != std::string::npos);
+  writer.Stop();
+  CHECK_FALSE(temp.Open(true)->StoredPosition("file:/x", 0).has_value());
+}
+
+}  // namespace plimsoll::stream
