@@ -351,6 +351,7 @@ int RunDemo(const DemoFlags& flags) {
   // Stops the daemon once every delivered record has been read (or the generator failed, or
   // nothing has arrived for 20 s after the generator ended).
   std::atomic<bool> finished{false};
+  std::atomic<bool> stopped_by_us{false};  // otherwise SIGINT/SIGTERM ended the run early
   std::thread watcher([&] {
     uint64_t last = 0;
     auto last_change = std::chrono::steady_clock::now();
@@ -364,6 +365,7 @@ int RunDemo(const DemoFlags& flags) {
       if (!generator_done.load()) continue;
       if (!generated.ok() || read >= generator.delivered() ||
           std::chrono::steady_clock::now() - last_change > std::chrono::seconds(20)) {
+        stopped_by_us.store(true);
         stop.Request();
       }
     }
@@ -389,7 +391,9 @@ int RunDemo(const DemoFlags& flags) {
     std::cerr << "plimsoll demo: generator: " << generated.ToString() << "\n";
     code = 1;
   }
-  if (code == 0 && read < generator.delivered()) {
+  if (!stopped_by_us.load()) {
+    std::cout << "\nStopped early by a signal: the summary covers the " << read << " records read so far.\n";
+  } else if (code == 0 && read < generator.delivered()) {
     std::cerr << "plimsoll demo: the daemon read " << read << " of " << generator.delivered()
               << " published records before it was stopped\n";
     code = 1;
