@@ -46,6 +46,8 @@
 #include <string>
 #include <vector>
 
+#include <spdlog/spdlog.h>
+
 #include "bench/bench.h"
 #include "plimsoll/base/clock.h"
 #include "plimsoll/model/state.h"
@@ -243,6 +245,8 @@ BenchReport Run(const BenchArgs& args) {
   const int64_t rounds = args.quick ? 20 : 30;
   const stream::DaemonOptions daemon_options;  // the `watch` defaults: commit every 100 ms or 50k records
   BenchReport report;
+  // The daemon logs at info level to stdout; keep stdout for the one JSON object.
+  spdlog::set_level(spdlog::level::warn);
 
   const RecordBuffer warmup = MakeRecords(series, 0, 2, 7);
   const RecordBuffer records = MakeRecords(series, 2, rounds, 11);
