@@ -19,10 +19,16 @@
 #include <vector>
 
 #include "plimsoll/model/simulate.h"
+#include "cli/watch_run_util.h"
 #include "plimsoll/store/store.h"
 
 namespace plimsoll {
 namespace {
+
+using watch_test::Outcome;
+using watch_test::ReadOutcome;
+using watch_test::StartWatch;
+using watch_test::WaitExit;
 
 namespace fs = std::filesystem;
 
@@ -66,54 +72,6 @@ void WriteConfig(const std::string& path, const std::string& feed, const std::st
       << "[logging]\nlevel = \"warn\"\n"
       << "[[profile]]\nmatch = \"feed-*\"\ninterval = \"1h\"\nperiod = 24\nwarmup = 120\nhistory = 500\n"
       << "forms = [\"ANA\", \"MNA\", \"AAdA\"]\n";
-}
-
-pid_t StartWatch(const std::string& config) {
-  const std::string binary = std::string(PLIMSOLL_BINARY_DIR) + "/plimsoll";
-  pid_t pid = fork();
-  if (pid == 0) {
-    execl(binary.c_str(), binary.c_str(), "watch", "--config", config.c_str(), static_cast<char*>(nullptr));
-    _exit(127);
-  }
-  return pid;
-}
-
-int WaitExit(pid_t pid) {
-  int status = 0;
-  waitpid(pid, &status, 0);
-  return WIFEXITED(status) ? WEXITSTATUS(status) : -WTERMSIG(status);
-}
-
-struct Outcome {
-  std::map<std::string, std::pair<int64_t, std::string>> states;  // series -> (step, checkpoint bytes)
-  std::vector<std::tuple<std::string, int64_t, double, double>> flags;
-  std::vector<std::tuple<std::string, int64_t, int>> alerts;
-  std::vector<store::PositionRecord> positions;
-};
-
-Outcome ReadOutcome(const std::string& db) {
-  store::StoreOptions options;
-  options.path = db;
-  options.read_only = true;
-  auto store = store::Store::Open(options);
-  REQUIRE(store.ok());
-  Outcome out;
-  REQUIRE((*store)
-              ->ForEachSeries([&](const store::StoredSeries& s) {
-                if (s.state) out.states[s.series.name] = {s.state->step, s.state->encoded};
-                return Status::Ok();
-              })
-              .ok());
-  auto flags = (*store)->RecentFlags("", 10'000'000);
-  REQUIRE(flags.ok());
-  for (const auto& f : *flags) out.flags.emplace_back(f.series, f.step, f.value, f.expected);
-  auto alerts = (*store)->RecentAlerts("", 10'000'000);
-  REQUIRE(alerts.ok());
-  for (const auto& a : *alerts) out.alerts.emplace_back(a.series, a.step, static_cast<int>(a.kind));
-  std::sort(out.flags.begin(), out.flags.end());
-  std::sort(out.alerts.begin(), out.alerts.end());
-  out.positions = (*store)->Positions();
-  return out;
 }
 
 }  // namespace
