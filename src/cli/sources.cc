@@ -56,6 +56,8 @@ class KafkaOutputSink final : public stream::OutputSink {
     return worst;
   }
 
+  Status Flush(int timeout_ms) override { return sink_->Flush(timeout_ms); }
+
  private:
   std::unique_ptr<kafka::KafkaSink> sink_;
 };

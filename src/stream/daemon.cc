@@ -317,6 +317,13 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     spdlog::error("final commit not durable: {}", drained.ToString());
     return drained;
   }
+  if (sink != nullptr) {
+    Status flushed = sink->Flush(static_cast<int>(options_.shutdown_timeout_ms));
+    if (!flushed.ok()) {
+      counters_.sink_errors.fetch_add(1, std::memory_order_relaxed);
+      spdlog::warn("outputs not all delivered at shutdown (they are in SQLite): {}", flushed.ToString());
+    }
+  }
   if (source_status.ok() || source_status.code() == StatusCode::kAborted) return Status::Ok();
   return source_status;
 }

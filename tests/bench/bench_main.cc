@@ -1,4 +1,7 @@
 // plimsoll-bench NAME [--json] [--quick] | plimsoll-bench list
+#include <spdlog/sinks/stdout_color_sinks.h>
+#include <spdlog/spdlog.h>
+
 #include <algorithm>
 #include <cstdio>
 #include <cstring>
@@ -97,6 +100,8 @@ bool RegisterBench(std::string name, std::string description, BenchFn fn) {
 
 int main(int argc, char** argv) {
   using namespace plimsoll::bench;
+  // Logs of the code under measurement go to stderr: stdout carries the report (one JSON object).
+  spdlog::set_default_logger(spdlog::stderr_color_mt("bench"));
   if (argc < 2) return Usage();
   std::string name = argv[1];
   if (name == "list") {

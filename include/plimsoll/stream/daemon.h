@@ -51,6 +51,9 @@ class OutputSink {
   // Called on the owner thread with each durable batch, in commit order. Errors are counted and
   // logged by the daemon; they never stop the loop (the rows are in SQLite).
   virtual Status Publish(const store::CommitBatch& durable) = 0;
+  // Waits up to `timeout_ms` until everything published was delivered. Run calls it after its
+  // final commit, so a stopped daemon has handed every output over.
+  virtual Status Flush(int /*timeout_ms*/) { return Status::Ok(); }
 };
 
 struct DaemonCounters {
