@@ -186,6 +186,8 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   size_t uncommitted = 0;
   int64_t last_commit_ns = clock->MonotonicNanos();
   int64_t last_clock_ns = last_commit_ns;
+  int64_t last_reack_ns = last_commit_ns;
+  constexpr int64_t kReacknowledgeNanos = 1'000'000'000;
   int64_t newest_record_ms = INT64_MIN;
   bool paused = false;
   int64_t paused_since_ns = 0;
@@ -285,6 +287,18 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     uncommitted += records.size();
 
     const int64_t now_ns = clock->MonotonicNanos();
+    if (now_ns - last_reack_ns >= kReacknowledgeNanos) {
+      // Advisory commits can be refused (e.g. during a rebalance) and an idle feed makes no new
+      // ones: repeat the durable positions of the streams still read, so Kafka's view catches up.
+      last_reack_ns = now_ns;
+      std::vector<SourcePosition> acks;
+      for (const StreamId& stream : source.Streams()) {
+        auto it = im.durable_positions.find({stream.name, stream.partition});
+        if (it != im.durable_positions.end()) acks.push_back({stream, it->second});
+      }
+      if (!acks.empty() && !source.Acknowledge(acks).ok())
+        counters_.acknowledge_errors.fetch_add(1, std::memory_order_relaxed);
+    }
     if (now_ns - last_clock_ns >= options_.commit_ms * 1'000'000 / 2) {
       last_clock_ns = now_ns;
       if (!options_.event_time) engine_->AdvanceClock(clock->WallMillis());
