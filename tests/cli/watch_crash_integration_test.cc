@@ -25,6 +25,7 @@
 namespace plimsoll {
 namespace {
 
+using watch_test::CheckSame;
 using watch_test::Outcome;
 using watch_test::ReadOutcome;
 using watch_test::StartWatch;
@@ -126,15 +127,7 @@ TEST_CASE("watch killed with SIGKILL at random points ends bit-identical to an u
     }
     const Outcome outcome = ReadOutcome(db);
     INFO("trial " << trial << " after " << runs << " runs");
-    REQUIRE(outcome.states.size() == reference.states.size());
-    for (const auto& [name, state] : reference.states) {
-      INFO("series " << name);
-      REQUIRE(outcome.states.count(name) == 1);
-      CHECK(outcome.states.at(name).first == state.first);
-      CHECK(outcome.states.at(name).second == state.second);  // checkpoint bytes: bit-identical
-    }
-    CHECK(outcome.flags == reference.flags);
-    CHECK(outcome.alerts == reference.alerts);
+    CheckSame(outcome, reference);
     CHECK(outcome.positions == reference.positions);
   }
   WARN("crash trials: " << kTrials << " trials, " << kills << " kills, full run " << full_run_ms << " ms");

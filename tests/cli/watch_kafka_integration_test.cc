@@ -40,6 +40,7 @@ namespace plimsoll {
 namespace {
 
 using watch_test::OpenReadOnly;
+using watch_test::CheckSame;
 using watch_test::Outcome;
 using watch_test::ReadOutcome;
 using watch_test::StartWatch;
@@ -177,17 +178,6 @@ Outcome FileReference(const TempDir& dir, const std::vector<Line>& lines) {
   return reference;
 }
 
-void CheckSame(const Outcome& got, const Outcome& reference) {
-  REQUIRE(got.states.size() == reference.states.size());
-  for (const auto& [name, state] : reference.states) {
-    INFO("series " << name);
-    REQUIRE(got.states.count(name) == 1);
-    CHECK(got.states.at(name).first == state.first);
-    CHECK(got.states.at(name).second == state.second);  // checkpoint bytes: bit-identical
-  }
-  CHECK(got.flags == reference.flags);
-  CHECK(got.alerts == reference.alerts);
-}
 
 std::string StartBroker(std::unique_ptr<kafka::EmbeddedBroker>& broker, const std::string& topic, int partitions) {
   kafka::EmbeddedBrokerOptions options;

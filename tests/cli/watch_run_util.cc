@@ -55,4 +55,16 @@ Outcome ReadOutcome(const std::string& db) {
   return out;
 }
 
+void CheckSame(const Outcome& got, const Outcome& reference) {
+  REQUIRE(got.states.size() == reference.states.size());
+  for (const auto& [name, state] : reference.states) {
+    INFO("series " << name);
+    REQUIRE(got.states.count(name) == 1);
+    CHECK(got.states.at(name).first == state.first);
+    CHECK(got.states.at(name).second == state.second);  // checkpoint bytes: bit-identical
+  }
+  CHECK(got.flags == reference.flags);
+  CHECK(got.alerts == reference.alerts);
+}
+
 }  // namespace plimsoll::watch_test

@@ -36,4 +36,8 @@ std::unique_ptr<store::Store> OpenReadOnly(const std::string& db);
 // REQUIREs that the store opens and reads.
 Outcome ReadOutcome(const std::string& db);
 
+// Checks that `got` has the reference's series with bit-identical checkpoints and steps, and
+// the same flags and alerts (positions are compared by the callers that expect them equal).
+void CheckSame(const Outcome& got, const Outcome& reference);
+
 }  // namespace plimsoll::watch_test
