@@ -180,7 +180,7 @@ Result<std::unique_ptr<KafkaSink>> KafkaSink::Create(KafkaSinkOptions options) {
   if (options.block_timeout_ms < 0 || options.close_timeout_ms < 0 || options.max_redeliveries < 0) {
     return Status::InvalidArgument("kafka sink: timeouts and max_redeliveries must not be negative");
   }
-  Properties overrides = options.properties;
+  Properties overrides = ForRole(options.properties, ClientRole::kProducer);
   if (!options.bootstrap_servers.empty()) overrides["bootstrap.servers"] = options.bootstrap_servers;
   Properties properties = MergeProperties(ProducerDefaults(), overrides);
   if (properties.count("bootstrap.servers") == 0) {

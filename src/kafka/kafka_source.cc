@@ -330,7 +330,7 @@ Result<std::unique_ptr<KafkaSource>> KafkaSource::Create(KafkaSourceOptions opti
   if (options.close_timeout_ms < 0 || options.committed_query_timeout_ms <= 0 || options.lag_interval_ms < 0) {
     return Status::InvalidArgument("kafka source: timeouts must be positive");
   }
-  Properties overrides = options.properties;
+  Properties overrides = ForRole(options.properties, ClientRole::kConsumer);
   if (!options.bootstrap_servers.empty()) overrides["bootstrap.servers"] = options.bootstrap_servers;
   if (!options.group_id.empty()) overrides["group.id"] = options.group_id;
   Properties properties = MergeProperties(ConsumerDefaults(), overrides);

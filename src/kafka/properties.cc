@@ -1,6 +1,12 @@
 #include "plimsoll/kafka/properties.h"
 
+#include <librdkafka/rdkafka.h>
+
+#include <cstdio>
+#include <cstdlib>
+#include <sstream>
 #include <string>
+#include <utility>
 
 namespace plimsoll::kafka {
 
@@ -74,6 +80,50 @@ Status ValidateProperties(const Properties& properties, bool consumer) {
         "reorder events");
   }
   return Status::Ok();
+}
+
+namespace {
+
+// Property name -> role letter ('C' consumer only, 'P' producer only) read once from the table
+// librdkafka prints about itself, so the split follows the linked library version. Lines look
+// like "group.id   |  C  | range | default | importance | description".
+std::map<std::string, char, std::less<>> ReadRoleTable() {
+  std::map<std::string, char, std::less<>> roles;
+  char* text = nullptr;
+  size_t size = 0;
+  FILE* memory = open_memstream(&text, &size);
+  if (memory == nullptr) return roles;
+  rd_kafka_conf_properties_show(memory);
+  std::fclose(memory);
+  std::istringstream lines(std::string(text, size));
+  std::free(text);
+  std::string line;
+  while (std::getline(lines, line)) {
+    const size_t bar = line.find('|');
+    if (bar == std::string::npos || bar == 0 || line[0] == ' ' || line[0] == '-') continue;
+    const size_t next = line.find('|', bar + 1);
+    if (next == std::string::npos) continue;
+    const std::string role = line.substr(bar + 1, next - bar - 1);
+    const char letter = role.find('C') != std::string::npos ? 'C' : role.find('P') != std::string::npos ? 'P' : '*';
+    if (letter == '*') continue;
+    std::string name = line.substr(0, bar);
+    name.erase(name.find_last_not_of(' ') + 1);
+    roles.emplace(std::move(name), letter);
+  }
+  return roles;
+}
+
+}  // namespace
+
+Properties ForRole(const Properties& properties, ClientRole role) {
+  static const std::map<std::string, char, std::less<>> kRoles = ReadRoleTable();
+  const char other = role == ClientRole::kConsumer ? 'P' : 'C';
+  Properties out;
+  for (const auto& [key, value] : properties) {
+    auto it = kRoles.find(key);
+    if (it == kRoles.end() || it->second != other) out.emplace(key, value);
+  }
+  return out;
 }
 
 Result<KafkaConf> BuildConf(const Properties& properties) {

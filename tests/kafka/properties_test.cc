@@ -74,5 +74,25 @@ TEST_CASE("librdkafka errors map to status codes by what the caller can do", "[k
   CHECK(s.message().find("(_TRANSPORT)") != std::string::npos);
 }
 
+TEST_CASE("one pass-through table serves consumer and producer", "[kafka]") {
+  // Roles as librdkafka's own property table (rd_kafka_conf_properties_show) states them.
+  const Properties shared{{"bootstrap.servers", "127.0.0.1:1"}, {"group.id", "g"}, {"fetch.wait.max.ms", "10"},
+                          {"linger.ms", "20"}, {"auto.offset.reset", "earliest"}, {"no.such.key", "x"}};
+  const Properties producer = ForRole(shared, ClientRole::kProducer);
+  CHECK(producer.count("bootstrap.servers") == 1);
+  CHECK(producer.count("linger.ms") == 1);
+  CHECK(producer.count("group.id") == 0);
+  CHECK(producer.count("fetch.wait.max.ms") == 0);
+  CHECK(producer.count("auto.offset.reset") == 0);
+  CHECK(producer.count("no.such.key") == 1);  // left for BuildConf to reject by name
+  const Properties consumer = ForRole(shared, ClientRole::kConsumer);
+  CHECK(consumer.count("group.id") == 1);
+  CHECK(consumer.count("fetch.wait.max.ms") == 1);
+  CHECK(consumer.count("auto.offset.reset") == 1);
+  CHECK(consumer.count("linger.ms") == 0);
+  CHECK_FALSE(BuildConf(producer).ok());
+  CHECK(BuildConf(ForRole({{"group.id", "g"}, {"linger.ms", "1"}}, ClientRole::kProducer)).ok());
+}
+
 }  // namespace
 }  // namespace plimsoll::kafka

@@ -34,7 +34,7 @@ enum class OverflowPolicy {
 
 struct KafkaSinkOptions {
   std::string bootstrap_servers;  // required unless `properties` carries bootstrap.servers
-  Properties properties;          // over ProducerDefaults(); librdkafka's own names
+  Properties properties;          // over ProducerDefaults(); librdkafka's own names; consumer-only keys dropped (ForRole)
   // Topic per EventKind (index = kind). An empty name disables that kind (counted as disabled).
   std::array<std::string, kEventKinds> topics = {"plimsoll.flags", "plimsoll.alerts", "plimsoll.models",
                                                  "plimsoll.dead-letters", "plimsoll.state"};

@@ -38,7 +38,8 @@ struct KafkaSourceOptions {
   std::string group_id;
   // Topic names, or regular expressions starting with '^' (librdkafka's pattern syntax).
   std::vector<std::string> topics;
-  // Passed through to librdkafka over ConsumerDefaults(); librdkafka's own names.
+  // Passed through to librdkafka over ConsumerDefaults(); librdkafka's own names; producer-only
+  // keys dropped (ForRole).
   Properties properties;
   // Start of a partition the group never consumed. Earliest reads what the topic holds.
   FreshStart fresh_start = FreshStart::kEarliest;

@@ -4,6 +4,7 @@
 //
 // Thread-safety: pure functions over values.
 
+#include <cstdint>
 #include <map>
 #include <string>
 #include <string_view>
@@ -34,6 +35,15 @@ Properties ProducerDefaults();
 
 // Returns `defaults` with every entry of `overrides` replacing or adding to it.
 Properties MergeProperties(const Properties& defaults, const Properties& overrides);
+
+enum class ClientRole : uint8_t { kConsumer, kProducer };
+
+// `properties` without the keys librdkafka's own property table (rd_kafka_conf_properties_show,
+// column C/P) marks as meaningful for the other role only, so one pass-through table such as
+// [source.kafka] can configure both the consumer and the sink without librdkafka warning about
+// every consumer key on the producer. Keys valid for both roles and unknown keys stay (unknown
+// ones are then rejected by BuildConf, naming the key).
+Properties ForRole(const Properties& properties, ClientRole role);
 
 // Checks the keys this module relies on: a consumer must not enable auto commit or auto offset
 // store or use the cooperative assignor; a producer must keep enable.idempotence=true.
