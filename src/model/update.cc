@@ -11,6 +11,10 @@ UpdateFn SelectUpdate(const ModelSpec& spec) {
   return internal::DispatchForm(spec, []<typename K>(K) -> UpdateFn { return &K::Step; });
 }
 
+BandedUpdateFn SelectBandedUpdate(const ModelSpec& spec) {
+  return internal::DispatchForm(spec, []<typename K>(K) -> BandedUpdateFn { return &K::StepBanded; });
+}
+
 StepResult Update(const ModelSpec& spec, const Params& params, State& state, double y) {
   return SelectUpdate(spec)(params, state, y);
 }

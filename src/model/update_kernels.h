@@ -13,8 +13,10 @@
 // The seasonal ring: season[head] is s_{t-m} for the next observation; it is overwritten with
 // s_t and head advances (mod m), so a step touches one slot whatever m is.
 
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
+#include <limits>
 #include <utility>
 
 #include "plimsoll/model/params.h"
@@ -94,9 +96,8 @@ struct Kernel {
     ++st.steps;
   }
 
-  // The UpdateFn contract (update.h).
-  static StepResult Step(const Params& p, State& st, double y) {
-    const Prediction q = Predict(p, st);
+  // Corrects the state predicted as `q` with observation y (NaN: gap step); returns e = y - mu.
+  static inline double Observe(const Params& p, State& st, const Prediction& q, double y) {
     const double e = y - q.mu;
     if (std::isnan(y)) [[unlikely]] {
       Correct(p, st, q, 0.0, 0.0);
@@ -109,11 +110,46 @@ struct Kernel {
       if constexpr (S == SeasonType::kMultiplicative) y_des = y * (1.0 / q.s);
       Correct(p, st, q, y_des - q.lp, e);
     }
+    return e;
+  }
+
+  // The UpdateFn contract (update.h).
+  static StepResult Step(const Params& p, State& st, double y) {
+    const Prediction q = Predict(p, st);
+    const double e = Observe(p, st, q, y);
     if constexpr (E == ErrorType::kAdditive) {
       return {q.mu, e, e};
     } else {
       return {q.mu, e, e / q.mu};
     }
+  }
+
+  // The BandedUpdateFn contract (update.h): one prediction serves the band, the flag and the
+  // correction. The band arithmetic is OneStepBand's (forecast.cc), so the bounds are the same.
+  static BandedStep StepBanded(const Params& p, State& st, double y, const BandRule& band) {
+    const Prediction q = Predict(p, st);
+    BandedStep r{};
+    r.mu = q.mu;
+    if (!std::isfinite(q.mu) || (kNeedsPositive && q.mu <= 0.0)) [[unlikely]]
+      return r;  // valid = false: state untouched
+    r.valid = true;
+    if constexpr (E == ErrorType::kAdditive) {
+      r.lower = q.mu - band.z * band.sd;
+      r.upper = q.mu + band.z * band.sd;
+    } else {
+      const double a = q.mu * (1.0 - band.z * band.sd);
+      const double b = q.mu * (1.0 + band.z * band.sd);
+      r.lower = std::min(a, b);
+      r.upper = std::max(a, b);
+    }
+    r.flagged = y < r.lower || y > r.upper;
+    double y_state = y;
+    if (r.flagged) [[unlikely]] {
+      if (band.policy == BandPolicy::kClip) y_state = y < r.lower ? r.lower : r.upper;
+      if (band.policy == BandPolicy::kSkip) y_state = std::numeric_limits<double>::quiet_NaN();
+    }
+    Observe(p, st, q, y_state);
+    return r;
   }
 
   // Simulation step driven by innovation eps (absolute for A error, relative for M error);

@@ -6,6 +6,7 @@
 #include <vector>
 
 #include "model/update_kernels.h"
+#include "plimsoll/model/forecast.h"
 #include "plimsoll/model/state.h"
 #include "plimsoll/model/update.h"
 
@@ -134,6 +135,61 @@ TEST_CASE("an update writes one ring slot and advances the head modulo m", "[mod
     }
     CHECK(changed <= 1);
   }
+}
+
+TEST_CASE("the banded step equals forecast, band and update done one after the other", "[model]") {
+  // Every form, every policy, values inside and outside the band: mu, bounds, the flag and the
+  // updated state must be bit-identical to PointForecast + OneStepBand + UpdateFn.
+  const auto same = [](double a, double b) { return std::bit_cast<uint64_t>(a) == std::bit_cast<uint64_t>(b); };
+  for (const ModelSpec& spec : AllForms(7)) {
+    for (BandPolicy policy : {BandPolicy::kUpdate, BandPolicy::kClip, BandPolicy::kSkip}) {
+      INFO(spec.Notation() << " policy " << static_cast<int>(policy));
+      const Params p = TestParams();
+      const double sigma = std::sqrt(spec.error == ErrorType::kAdditive ? 4.0 : 1e-3);
+      const BandRule rule{TwoSidedZ(99.0), std::sqrt(sigma * sigma), policy};
+      State banded = TestState(spec);
+      State reference = banded;
+      const BandedUpdateFn fn = SelectBandedUpdate(spec);
+      const UpdateFn update = SelectUpdate(spec);
+      int flagged = 0;
+      for (int t = 0; t < 300; ++t) {
+        const double y = 100.0 + 5.0 * std::sin(0.5 * t) + (t % 37 == 5 ? 60.0 : 0.0) - (t % 41 == 9 ? 50.0 : 0.0);
+        const double mu = PointForecast(spec, p, reference, 1);
+        if (!std::isfinite(mu) || (spec.needs_positive_data() && mu <= 0.0)) {
+          // Some forms drift out of their region on this data: the step must refuse, untouched.
+          CHECK_FALSE(fn(p, banded, y, rule).valid);
+          CHECK(banded == reference);
+          break;
+        }
+        const Band band = OneStepBand(spec, mu, sigma * sigma, rule.z);
+        const bool out = y < band.lower || y > band.upper;
+        double y_state = y;
+        if (out && policy == BandPolicy::kClip) y_state = y < band.lower ? band.lower : band.upper;
+        if (out && policy == BandPolicy::kSkip) y_state = kNaN;
+        update(p, reference, y_state);
+        const BandedStep r = fn(p, banded, y, rule);
+        REQUIRE(r.valid);
+        CHECK(same(r.mu, mu));
+        CHECK(same(r.lower, band.lower));
+        CHECK(same(r.upper, band.upper));
+        CHECK(r.flagged == out);
+        REQUIRE(banded == reference);
+        flagged += out ? 1 : 0;
+      }
+      CHECK(flagged > 0);  // the spikes must have been judged outside the band
+    }
+  }
+}
+
+TEST_CASE("the banded step refuses a non-positive forecast and leaves the state alone", "[model]") {
+  const ModelSpec spec = *ParseModelSpec("MNN", 1);
+  State st = MakeState(-5.0, 0.0, {}, 1e-3);
+  const State before = st;
+  const BandedStep r = SelectBandedUpdate(spec)(TestParams(), st, 10.0, BandRule{2.0, 0.03, BandPolicy::kUpdate});
+  CHECK_FALSE(r.valid);
+  CHECK(st == before);
+  const ModelSpec additive = *ParseModelSpec("ANN", 1);
+  CHECK(SelectBandedUpdate(additive)(TestParams(), st, 10.0, BandRule{2.0, 0.03, BandPolicy::kUpdate}).valid);
 }
 
 TEST_CASE("point forecasts take the seasonal value for their own step", "[model]") {
