@@ -31,9 +31,15 @@ int CountEstimated(const model::ModelSpec& spec, const FitOptions& options);
 Status CheckFormSuitsData(const model::ModelSpec& spec, std::span<const double> y, const DataSummary& data,
                           const FitOptions& options);
 
-// FitModel after options and data have been checked once.
+// FitModel after options and data have been checked once. `twin`, when set, is the fitted
+// additive-error form with the same trend and season as a multiplicative-error `spec` (same state
+// updates, likelihoods that differ only in the error scale): its optimum replaces the generic
+// start points of the concentrated search (one start instead of `options.starts`).
 Result<FitResult> FitValidated(const model::ModelSpec& spec, std::span<const double> y, const DataSummary& data,
-                               const FitOptions& options, const Clock& clock);
+                               const FitOptions& options, const Clock& clock, const FitResult* twin = nullptr);
+
+// True when `twin` may seed the search for `spec` (see FitValidated).
+bool IsErrorTwin(const model::ModelSpec& spec, const model::ModelSpec& twin);
 
 // "%.6g" of v, for messages.
 std::string FormatValue(double v);

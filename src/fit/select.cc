@@ -109,7 +109,13 @@ Result<Selection> SelectModel(std::span<const double> y, const FitOptions& optio
       skipped.push_back(std::move(c));
       continue;
     }
-    auto fit = FitValidated(spec, y, *data, options, clock);
+    // A multiplicative-error form starts from its additive-error twin's optimum when that was
+    // fitted earlier in the list (the default candidates list every A form first).
+    const FitResult* twin = nullptr;
+    for (const Candidate& done : fitted) {
+      if (IsErrorTwin(spec, done.spec)) twin = &*done.fit;
+    }
+    auto fit = FitValidated(spec, y, *data, options, clock, twin);
     if (!fit.ok()) {
       c.outcome = CandidateOutcome::kFailed;
       c.reason = fit.status().message();

@@ -36,11 +36,13 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
     : spec_(spec), y_(y), estimate_season_(estimate_season && spec.has_season()) {
   p_ = 1 + (spec.has_trend() ? 1 : 0) + (estimate_season_ ? spec.period - 1 : 0);
   for (double v : y) n_obs_ += std::isnan(v) ? 0 : 1;
-  jacobian_.resize(static_cast<size_t>(n_obs_) * static_cast<size_t>(p_));
+  pp_ = (p_ + 1) / 2 * 2;
+  const size_t pp = static_cast<size_t>(pp_);
+  // One spare row: the pass writes a gap's row before knowing it will not keep it.
+  jacobian_.resize((static_cast<size_t>(n_obs_) + 1) * pp);
   residuals_.resize(static_cast<size_t>(n_obs_));
-  const size_t p = static_cast<size_t>(p_);
-  for (auto* v : {&grad_log_mu_, &t_level_, &t_trend_, &d_lp_, &d_mu_, &d_scaled_, &d_e_}) v->resize(p);
-  t_season_.resize(spec.has_season() ? p * static_cast<size_t>(spec.period) : 0);
+  for (auto* v : {&grad_log_mu_, &t_level_, &t_trend_}) v->resize(pp);
+  t_season_.resize(spec.has_season() ? pp * static_cast<size_t>(spec.period) : 0);
 }
 
 bool StateSolver::affine() const {
@@ -60,17 +62,227 @@ double StateSolver::Objective(const model::Params& params, double level, double 
   return -r->loglik;
 }
 
+namespace {
+
+// Two doubles in one SSE2 register (GCC/Clang vector extension): the tangent columns are
+// processed in pairs, which the compiler does not do by itself at -O2 for loops of unknown
+// length over several arrays.
+typedef double Pair __attribute__((vector_size(16)));
+
+// The tangent-linear pass for one shape, all columns of a step fused in one loop. Columns are
+// padded to an even count (the pad columns start at zero and stay zero).
+template <bool kTrend, model::SeasonType kSeason, bool kMultError>
+bool TangentPass(std::span<const double> y, const model::Params& params, double phi, double level, double trend,
+                 std::vector<double>& season_work, size_t pp, double* __restrict tl, double* __restrict tb,
+                 double* __restrict t_season, double* __restrict jacobian, double* __restrict residuals,
+                 double* __restrict grad_log_mu, bool needs_positive) {
+  constexpr bool kAddSeason = kSeason == model::SeasonType::kAdditive;
+  constexpr bool kMultSeason = kSeason == model::SeasonType::kMultiplicative;
+  constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
+  const size_t m = season_work.size();
+  const double alpha = params.alpha, beta = params.beta, gamma = params.gamma;
+  const size_t pairs = pp / 2;
+  double l = level, b = kTrend ? trend : 0.0;
+  size_t row = 0;
+  size_t k = 0;  // seasonal slot of this observation
+  Pair* __restrict vl = reinterpret_cast<Pair*>(tl);
+  Pair* __restrict vb = reinterpret_cast<Pair*>(tb);
+  Pair* __restrict vg = reinterpret_cast<Pair*>(grad_log_mu);
+  for (size_t t = 0; t < y.size(); ++t) {
+    const double lp = l + phi * b;
+    double s = 0.0, mu = lp;
+    Pair* __restrict vs = kHasSeason ? reinterpret_cast<Pair*>(t_season + k * pp) : nullptr;
+    if constexpr (kAddSeason) {
+      s = season_work[k];
+      mu = lp + s;
+    } else if constexpr (kMultSeason) {
+      s = season_work[k];
+      mu = lp * s;
+    }
+    if (!std::isfinite(mu) || (needs_positive && !(mu > 0))) return false;
+    const double yt = y[t];
+    const bool missing = std::isnan(yt);
+    const double e = missing ? 0.0 : yt - mu;
+    // d e = -d mu (0 for a gap); e~ = e (or e / s); the state updates as in the kernel.
+    const double keep = missing ? 0.0 : 1.0;
+    const double inv_s = kMultSeason ? 1.0 / s : 1.0;
+    const double e_s2 = kMultSeason ? e * inv_s * inv_s : 0.0;
+    const double inv_lp = kMultSeason ? 1.0 / lp : 0.0;
+    const double e_lp2 = kMultSeason ? e * inv_lp * inv_lp : 0.0;
+    const double scaled = kMultSeason ? e / s : e;
+    Pair* __restrict vj = reinterpret_cast<Pair*>(jacobian + row * pp);
+    const double inv_mu = 1.0 / mu;
+    const double c = kMultError ? -yt * inv_mu * inv_mu : 0.0;
+    for (size_t i = 0; i < pairs; ++i) {
+      const Pair dlp = kTrend ? vl[i] + phi * vb[i] : vl[i];
+      Pair dmu = dlp, ds{};
+      if constexpr (kAddSeason) {
+        ds = vs[i];
+        dmu = dlp + ds;
+      } else if constexpr (kMultSeason) {
+        ds = vs[i];
+        dmu = dlp * s + lp * ds;
+      }
+      const Pair de = -keep * dmu;
+      const Pair dsc = kMultSeason ? de * inv_s - e_s2 * ds : de;
+      vl[i] = dlp + alpha * dsc;
+      if constexpr (kTrend) vb[i] = phi * vb[i] + beta * dsc;
+      if constexpr (kAddSeason) vs[i] = ds + gamma * de;
+      if constexpr (kMultSeason) vs[i] = ds + gamma * (de * inv_lp - e_lp2 * dlp);
+      if constexpr (kMultError) {
+        vj[i] = c * dmu;
+        vg[i] += keep * inv_mu * dmu;
+      } else {
+        vj[i] = de;
+      }
+    }
+    l = lp + alpha * scaled;
+    if constexpr (kTrend) b = phi * b + beta * scaled;
+    if constexpr (kAddSeason) season_work[k] = s + gamma * e;
+    if constexpr (kMultSeason) season_work[k] = s + gamma * e / lp;
+    if (kHasSeason && ++k == m) k = 0;
+    if (missing) continue;
+    residuals[row] = kMultError ? e / mu : e;
+    ++row;
+  }
+  return true;
+}
+
+// The gradient of -loglik with respect to (alpha, beta, gamma, phi) with the state held fixed: one
+// forward pass carrying the four tangents (two pairs: (alpha, beta) and (gamma, phi)) of the
+// level, the trend and every seasonal slot. False when infeasible.
+template <bool kTrend, model::SeasonType kSeason, bool kMultError>
+bool ParamGradientPass(std::span<const double> y, const model::Params& params, bool damped, double level,
+                         double trend, const std::vector<double>& season, bool needs_positive,
+                         std::vector<double>& season_work, std::vector<double>& t_season, double grad[4]) {
+  constexpr bool kAddSeason = kSeason == model::SeasonType::kAdditive;
+  constexpr bool kMultSeason = kSeason == model::SeasonType::kMultiplicative;
+  constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
+  const size_t m = season.size();
+  season_work = season;
+  t_season.assign(kHasSeason ? 4 * m : 0, 0.0);
+  const double alpha = params.alpha, beta = params.beta, gamma = params.gamma;
+  const double phi = damped ? params.phi : 1.0;
+  const double dphi = damped ? 1.0 : 0.0;  // phi's own column is live only for damped trends
+  Pair l0{}, l1{}, b0{}, b1{};             // d level, d trend: (alpha, beta), (gamma, phi)
+  Pair g0{}, g1{};                         // sum of residual * d residual
+  Pair h0{}, h1{};                         // sum of d mu / mu (relative error)
+  double l = level, b = kTrend ? trend : 0.0;
+  double sse = 0.0;
+  int n = 0;
+  size_t k = 0;
+  for (size_t t = 0; t < y.size(); ++t) {
+    const double lp = l + phi * b;
+    const Pair lp0 = kTrend ? l0 + phi * b0 : l0;
+    const Pair lp1 = kTrend ? l1 + phi * b1 + Pair{0.0, dphi * b} : l1;
+    double s = 0.0, mu = lp;
+    Pair s0{}, s1{}, mu0 = lp0, mu1 = lp1;
+    Pair* ts = kHasSeason ? reinterpret_cast<Pair*>(t_season.data() + 4 * k) : nullptr;
+    if constexpr (kHasSeason) {
+      s = season_work[k];
+      s0 = ts[0];
+      s1 = ts[1];
+    }
+    if constexpr (kAddSeason) {
+      mu = lp + s;
+      mu0 = lp0 + s0;
+      mu1 = lp1 + s1;
+    } else if constexpr (kMultSeason) {
+      mu = lp * s;
+      mu0 = lp0 * s + lp * s0;
+      mu1 = lp1 * s + lp * s1;
+    }
+    if (!std::isfinite(mu) || (needs_positive && !(mu > 0))) return false;
+    const double yt = y[t];
+    const bool missing = std::isnan(yt);
+    const double e = missing ? 0.0 : yt - mu;
+    const double keep = missing ? 0.0 : 1.0;
+    const Pair e0 = -keep * mu0, e1 = -keep * mu1;
+    double scaled = e;
+    Pair sc0 = e0, sc1 = e1;
+    if constexpr (kMultSeason) {
+      scaled = e / s;
+      const double inv_s = 1.0 / s, e_s2 = e * inv_s * inv_s;
+      sc0 = e0 * inv_s - e_s2 * s0;
+      sc1 = e1 * inv_s - e_s2 * s1;
+    }
+    l0 = lp0 + alpha * sc0 + Pair{scaled, 0.0};
+    l1 = lp1 + alpha * sc1;
+    if constexpr (kTrend) {
+      b0 = phi * b0 + beta * sc0 + Pair{0.0, scaled};
+      b1 = phi * b1 + beta * sc1 + Pair{0.0, dphi * b};
+    }
+    if constexpr (kAddSeason) {
+      ts[0] = s0 + gamma * e0;
+      ts[1] = s1 + gamma * e1 + Pair{e, 0.0};
+      season_work[k] = s + gamma * e;
+    } else if constexpr (kMultSeason) {
+      const double inv_lp = 1.0 / lp, e_lp2 = e * inv_lp * inv_lp;
+      ts[0] = s0 + gamma * (e0 * inv_lp - e_lp2 * lp0);
+      ts[1] = s1 + gamma * (e1 * inv_lp - e_lp2 * lp1) + Pair{e * inv_lp, 0.0};
+      season_work[k] = s + gamma * e / lp;
+    }
+    l = lp + alpha * scaled;
+    if constexpr (kTrend) b = phi * b + beta * scaled;
+    if (kHasSeason && ++k == m) k = 0;
+    if (missing) continue;
+    ++n;
+    if constexpr (kMultError) {
+      const double r = e / mu;
+      const double c = -r * yt / (mu * mu);  // r * d r / d mu
+      sse += r * r;
+      g0 += c * mu0;
+      g1 += c * mu1;
+      const double inv_mu = 1.0 / mu;
+      h0 += inv_mu * mu0;
+      h1 += inv_mu * mu1;
+    } else {
+      sse += e * e;
+      g0 += e * e0;
+      g1 += e * e1;
+    }
+  }
+  if (n == 0 || !(sse > 0) || !std::isfinite(sse)) return false;
+  const double w = n / sse;
+  const Pair d0 = w * g0 + h0, d1 = w * g1 + h1;
+  grad[0] = d0[0];
+  grad[1] = kTrend ? d0[1] : 0.0;
+  grad[2] = kHasSeason ? d1[0] : 0.0;
+  grad[3] = kTrend && damped ? d1[1] : 0.0;
+  return std::isfinite(d0[0] + d0[1] + d1[0] + d1[1]);
+}
+
+}  // namespace
+
+bool StateSolver::ParamGradient(const model::Params& params, double level, double trend,
+                                  const std::vector<double>& season, double grad[4]) {
+  const bool positive = spec_.needs_positive_data();
+  auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
+    return ParamGradientPass<kTrend, kSeason, kMultError>(y_, params, spec_.damped(), level, trend, season, positive,
+                                                          season_work_, t_param_season_, grad);
+  };
+  auto by_season = [&]<bool kTrend, bool kMultError>() {
+    switch (spec_.season) {
+      case model::SeasonType::kAdditive:
+        return run.template operator()<kTrend, model::SeasonType::kAdditive, kMultError>();
+      case model::SeasonType::kMultiplicative:
+        return run.template operator()<kTrend, model::SeasonType::kMultiplicative, kMultError>();
+      case model::SeasonType::kNone: break;
+    }
+    return run.template operator()<kTrend, model::SeasonType::kNone, kMultError>();
+  };
+  const bool mult_error = spec_.error == model::ErrorType::kMultiplicative;
+  if (spec_.has_trend()) {
+    return mult_error ? by_season.template operator()<true, true>() : by_season.template operator()<true, false>();
+  }
+  return mult_error ? by_season.template operator()<false, true>() : by_season.template operator()<false, false>();
+}
+
 bool StateSolver::Tangents(const model::Params& params, double level, double trend,
                            const std::vector<double>& season) {
-  const size_t p = static_cast<size_t>(p_);
+  const size_t pp = static_cast<size_t>(pp_);
   const size_t m = season.size();
   const bool has_trend = spec_.has_trend();
-  const bool add_season = spec_.season == model::SeasonType::kAdditive;
-  const bool mult_season = spec_.season == model::SeasonType::kMultiplicative;
-  const bool mult_error = spec_.error == model::ErrorType::kMultiplicative;
-  const double phi = spec_.damped() ? params.phi : 1.0;
-  const double alpha = params.alpha, beta = params.beta, gamma = params.gamma;
-
   std::fill(t_level_.begin(), t_level_.end(), 0.0);
   std::fill(t_trend_.begin(), t_trend_.end(), 0.0);
   std::fill(t_season_.begin(), t_season_.end(), 0.0);
@@ -82,90 +294,37 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
     // the normalisation (sum 0 or mean 1), so it moves by minus their sum.
     const size_t o = has_trend ? 2 : 1;
     for (size_t j = 0; j + 1 < m; ++j) {
-      t_season_[j * p + o + j] = 1.0;
-      t_season_[(m - 1) * p + o + j] = -1.0;
+      t_season_[j * pp + o + j] = 1.0;
+      t_season_[(m - 1) * pp + o + j] = -1.0;
     }
   }
   season_work_ = season;
-  double l = level, b = has_trend ? trend : 0.0;
-  size_t row = 0;
-  size_t k = 0;  // seasonal slot of this observation
-  double* dlp = d_lp_.data();
-  double* dmu = d_mu_.data();
-  double* dsc = d_scaled_.data();
-  double* de = d_e_.data();
-  double* tl = t_level_.data();
-  double* tb = t_trend_.data();
-  for (size_t t = 0; t < y_.size(); ++t) {
-    const double lp = l + phi * b;
-    if (has_trend) {
-      for (size_t i = 0; i < p; ++i) dlp[i] = tl[i] + phi * tb[i];
-    } else {
-      for (size_t i = 0; i < p; ++i) dlp[i] = tl[i];
+  const double phi = spec_.damped() ? params.phi : 1.0;
+  const bool positive = spec_.needs_positive_data();
+  auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
+    return TangentPass<kTrend, kSeason, kMultError>(y_, params, phi, level, trend, season_work_, pp, t_level_.data(),
+                                                    t_trend_.data(), t_season_.data(), jacobian_.data(),
+                                                    residuals_.data(), grad_log_mu_.data(), positive);
+  };
+  auto by_season = [&]<bool kTrend, bool kMultError>() {
+    switch (spec_.season) {
+      case model::SeasonType::kAdditive:
+        return run.template operator()<kTrend, model::SeasonType::kAdditive, kMultError>();
+      case model::SeasonType::kMultiplicative:
+        return run.template operator()<kTrend, model::SeasonType::kMultiplicative, kMultError>();
+      case model::SeasonType::kNone: break;
     }
-    double s = 0.0, mu = lp;
-    double* ds = spec_.has_season() ? t_season_.data() + k * p : nullptr;
-    if (add_season) {
-      s = season_work_[k];
-      mu = lp + s;
-      for (size_t i = 0; i < p; ++i) dmu[i] = dlp[i] + ds[i];
-    } else if (mult_season) {
-      s = season_work_[k];
-      mu = lp * s;
-      for (size_t i = 0; i < p; ++i) dmu[i] = dlp[i] * s + lp * ds[i];
-    } else {
-      for (size_t i = 0; i < p; ++i) dmu[i] = dlp[i];
-    }
-    if (!std::isfinite(mu) || (spec_.needs_positive_data() && !(mu > 0))) return false;
-    const double yt = y_[t];
-    const bool missing = std::isnan(yt);
-    const double e = missing ? 0.0 : yt - mu;
-    if (missing) {
-      std::fill(d_e_.begin(), d_e_.end(), 0.0);
-    } else {
-      for (size_t i = 0; i < p; ++i) de[i] = -dmu[i];
-    }
-    double scaled = e;
-    if (mult_season) {
-      scaled = e / s;
-      const double e_s2 = e / (s * s);
-      for (size_t i = 0; i < p; ++i) dsc[i] = de[i] / s - e_s2 * ds[i];
-    } else {
-      for (size_t i = 0; i < p; ++i) dsc[i] = de[i];
-    }
-    l = lp + alpha * scaled;
-    for (size_t i = 0; i < p; ++i) tl[i] = dlp[i] + alpha * dsc[i];
-    if (has_trend) {
-      b = phi * b + beta * scaled;
-      for (size_t i = 0; i < p; ++i) tb[i] = phi * tb[i] + beta * dsc[i];
-    }
-    if (add_season) {
-      season_work_[k] = s + gamma * e;
-      for (size_t i = 0; i < p; ++i) ds[i] += gamma * de[i];
-    } else if (mult_season) {
-      season_work_[k] = s + gamma * e / lp;
-      const double e_lp2 = e / (lp * lp);
-      for (size_t i = 0; i < p; ++i) ds[i] += gamma * (de[i] / lp - e_lp2 * dlp[i]);
-    }
-    if (spec_.has_season() && ++k == m) k = 0;
-    if (missing) continue;
-    double* jrow = jacobian_.data() + row * p;
-    if (mult_error) {
-      residuals_[row] = e / mu;
-      const double c = -yt / (mu * mu);
-      const double inv_mu = 1.0 / mu;
-      for (size_t i = 0; i < p; ++i) {
-        jrow[i] = c * dmu[i];
-        grad_log_mu_[i] += inv_mu * dmu[i];
-      }
-    } else {
-      residuals_[row] = e;
-      for (size_t i = 0; i < p; ++i) jrow[i] = de[i];
-    }
-    ++row;
+    return run.template operator()<kTrend, model::SeasonType::kNone, kMultError>();
+  };
+  const bool mult_error = spec_.error == model::ErrorType::kMultiplicative;
+  if (has_trend) {
+    return mult_error ? by_season.template operator()<true, true>() : by_season.template operator()<true, false>();
   }
-  return true;
+  return mult_error ? by_season.template operator()<false, true>() : by_season.template operator()<false, false>();
 }
+
+using JacobianMap = Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>, 0,
+                               Eigen::OuterStride<>>;
 
 double StateSolver::Solve(const model::Params& params, double& level, double& trend,
                           std::vector<double>& season, int* passes) {
@@ -191,8 +350,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   if (affine()) {
     ++*passes;
     if (!Tangents(params, level, trend, season)) return kInf;
-    Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>> jac(jacobian_.data(),
-                                                                                              n_obs_, p);
+    const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     Eigen::MatrixXd h = Eigen::MatrixXd::Zero(p, p);
     h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
@@ -224,8 +382,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   for (int step_count = 0; step_count < kMaxSteps; ++step_count) {
     ++*passes;
     if (!Tangents(params, level, trend, season)) break;
-    Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>> jac(jacobian_.data(),
-                                                                                              n_obs_, p);
+    const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     if (refresh) {
       Eigen::MatrixXd h = Eigen::MatrixXd::Zero(p, p);

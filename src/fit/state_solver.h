@@ -40,6 +40,13 @@ class StateSolver {
   double Solve(const model::Params& params, double& level, double& trend, std::vector<double>& season_chrono,
                int* passes);
 
+  // The gradient of -loglik at (params, state) with respect to (alpha, beta, gamma, phi) with the
+  // state held fixed (zero for parameters the form lacks); one pass over the history. At the
+  // state Solve returns this is the gradient of the profile (envelope theorem: the state's own
+  // gradient is zero there). False when the state is infeasible or the gradient not finite.
+  bool ParamGradient(const model::Params& params, double level, double trend, const std::vector<double>& season_chrono,
+                       double grad[4]);
+
  private:
   // -loglik at the given state, +infinity when infeasible.
   double Objective(const model::Params& params, double level, double trend, const std::vector<double>& season);
@@ -50,11 +57,13 @@ class StateSolver {
   std::span<const double> y_;
   bool estimate_season_;
   int p_ = 0;       // free state coordinates
+  int pp_ = 0;      // p_ rounded up to even: the tangent pass handles columns in pairs
   int n_obs_ = 0;   // non-missing observations
-  std::vector<double> jacobian_;      // n_obs x p, row-major: d residual_t / d state
+  std::vector<double> jacobian_;      // n_obs x pp, row-major: d residual_t / d state
   std::vector<double> residuals_;     // n_obs
-  std::vector<double> grad_log_mu_;   // p: d sum log mu_t / d state (relative error only)
-  std::vector<double> t_level_, t_trend_, t_season_, d_lp_, d_mu_, d_scaled_, d_e_;
+  std::vector<double> grad_log_mu_;   // pp: d sum log mu_t / d state (relative error only)
+  std::vector<double> t_level_, t_trend_, t_season_;  // tangents of the state, pp per state
+  std::vector<double> t_param_season_;                 // 4 per slot: seasonal tangents to the parameters
   std::vector<double> season_work_, trial_season_;
 };
 

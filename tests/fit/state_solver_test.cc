@@ -77,3 +77,53 @@ TEST_CASE("the state solve reaches a point no coordinate move improves", "[fit]"
 
 }  // namespace
 }  // namespace plimsoll::fit
+
+namespace plimsoll::fit {
+namespace {
+
+// The gradient the optimiser is given: d(-loglik)/d(alpha, beta, gamma, phi) at a fixed state must
+// match central differences of model::EvaluateLikelihood, for every shape the pass implements
+// (with a gap in the history).
+TEST_CASE("the parameter gradient matches central differences of the likelihood", "[fit]") {
+  const int m = 12;
+  for (const char* form : {"ETS(A,N,N)", "ETS(A,Ad,N)", "ETS(A,A,A)", "ETS(A,Ad,A)", "ETS(M,Ad,N)", "ETS(M,Ad,A)",
+                           "ETS(M,N,M)", "ETS(M,Ad,M)"}) {
+    auto spec = model::ParseModelSpec(form, m);
+    REQUIRE(spec.ok());
+    const bool mult_season = spec->season == model::SeasonType::kMultiplicative;
+    std::vector<double> season;
+    for (int j = 0; j < (spec->has_season() ? m : 0); ++j) {
+      const double v = std::sin(2 * 3.14159265358979 * (j + 0.5) / m);
+      season.push_back(mult_season ? 1.0 + 0.2 * v : 15.0 * v);
+    }
+    const model::Params truth{0.3, spec->has_trend() ? 0.02 : 0.0, spec->has_season() ? 0.1 : 0.0,
+                              spec->damped() ? 0.9 : 1.0};
+    std::vector<double> y = model::SimulateSeries(*spec, truth, model::MakeState(400, 0.3, season),
+                                                  spec->error == model::ErrorType::kAdditive ? 9.0 : 0.0009, 240, 7);
+    y[40] = std::nan("");
+    // Away from the simulating values, so no partial derivative is near zero by construction.
+    const model::Params at{0.41, spec->has_trend() ? 0.05 : 0.0, spec->has_season() ? 0.07 : 0.0,
+                           spec->damped() ? 0.93 : 1.0};
+    StateSolver solver(*spec, y, true);
+    double g[4];
+    REQUIRE(solver.ParamGradient(at, 395, 0.25, season, g));
+    for (int i = 0; i < 4; ++i) {
+      if ((i == 1 && !spec->has_trend()) || (i == 2 && !spec->has_season()) || (i == 3 && !spec->damped())) {
+        CHECK(g[i] == 0.0);
+        continue;
+      }
+      const double h = 1e-6;
+      model::Params up = at, down = at;
+      double* u = i == 0 ? &up.alpha : i == 1 ? &up.beta : i == 2 ? &up.gamma : &up.phi;
+      double* d = i == 0 ? &down.alpha : i == 1 ? &down.beta : i == 2 ? &down.gamma : &down.phi;
+      *u += h;
+      *d -= h;
+      const double numeric = (NegLoglik(*spec, up, 395, 0.25, season, y) - NegLoglik(*spec, down, 395, 0.25, season, y)) / (2 * h);
+      INFO(form << " parameter " << i << ": analytic " << g[i] << " numeric " << numeric);
+      CHECK(g[i] == Approx(numeric).epsilon(1e-5).margin(1e-3));
+    }
+  }
+}
+
+}  // namespace
+}  // namespace plimsoll::fit
