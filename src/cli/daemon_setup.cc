@@ -8,6 +8,7 @@
 #include <sstream>
 
 #include "plimsoll/fit/fit.h"
+#include "plimsoll/refit/refit.h"
 #include "plimsoll/stream/fit_chooser.h"
 
 namespace plimsoll::cli {
@@ -43,8 +44,21 @@ store::StoreOptions StoreOptionsFor(const stream::Config& config) {
 Result<std::unique_ptr<stream::Daemon>> OpenDaemon(const stream::Config& config, Clock* clock) {
   Result<std::unique_ptr<store::Store>> store = store::Store::Open(StoreOptionsFor(config));
   if (!store.ok()) return store.status().WithContext("store.path '" + config.store.path + "'");
+  refit::RefitServiceOptions refit_options = refit::RefitServiceOptionsFromConfig(config);
+  // Background fits stop a form at the whole refit's budget; the service keeps the current model
+  // when the refit as a whole ran over it.
+  fit::FitOptions refit_fit;
+  refit_fit.max_seconds_per_form = static_cast<double>(refit_options.time_budget_ms) / 1000.0;
+  std::unique_ptr<stream::RefitService> refits;
+  try {
+    refits = refit::MakeRefitService(refit_options, stream::MakeFitChooser(refit_fit, clock),
+                                     refit::StoreHistoryReaders(StoreOptionsFor(config)), clock);
+  } catch (const std::invalid_argument& e) {
+    return Status::InvalidArgument(std::string("[refit]: ") + e.what());
+  }
   return stream::Daemon::Open(stream::DaemonOptionsFromConfig(config), stream::EngineOptionsFromConfig(config),
-                              stream::MakeFitChooser(fit::FitOptions{}, clock), std::move(store).value(), clock);
+                              stream::MakeFitChooser(fit::FitOptions{}, clock), std::move(store).value(), clock,
+                              std::move(refits));
 }
 
 StopOnSignal::StopOnSignal() {
@@ -77,6 +91,7 @@ std::string RunSummary(const stream::Daemon& daemon) {
       << daemon.engine().series_count() << ", flags " << e.flags << ", alerts raised " << e.alerts_raised
       << " / cleared " << e.alerts_cleared << ", dead letters " << e.dead_letters << ", fits " << e.fits
       << " (failed " << e.fit_failures << "), durable commits " << d.commits.load();
+  if (const stream::RefitService* refits = daemon.refits()) out << "; " << refits->Summary();
   return out.str();
 }
 

@@ -92,6 +92,15 @@ CREATE TABLE history (
   PRIMARY KEY (series, first_step)
 ) WITHOUT ROWID;
 )sql"},
+    {3, "explicit refit requests: the refit verb adds rows, a running daemon takes them",
+     R"sql(
+CREATE TABLE refit_requests (
+  id           INTEGER PRIMARY KEY,
+  pattern      TEXT NOT NULL,
+  reason       TEXT NOT NULL,
+  requested_ms INTEGER NOT NULL
+);
+)sql"},
 };
 
 Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }

@@ -147,6 +147,9 @@ class Store::Impl {
   Result<std::vector<EventRecord>> RecentEvents(std::string_view series, size_t limit);
   Result<std::vector<StoredDeadLetter>> RecentDeadLetters(size_t limit);
   Result<HistorySlice> HistoryTail(std::string_view series, size_t n);
+  Status AddRefitRequest(std::string_view pattern, std::string_view reason, int64_t requested_ms);
+  Result<std::vector<RefitRequestRecord>> TakeRefitRequests();
+  Status SetSeriesProfile(std::string_view series, std::string_view profile);
   std::optional<int64_t> StoredPosition(std::string_view stream, int32_t partition) const;
   std::vector<PositionRecord> Positions() const;
 
@@ -655,6 +658,61 @@ Result<std::vector<StoredDeadLetter>> Store::Impl::RecentDeadLetters(size_t limi
   return out;
 }
 
+Status Store::Impl::AddRefitRequest(std::string_view pattern, std::string_view reason, int64_t requested_ms) {
+  if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
+  return RunTransaction(
+      "adding a refit request",
+      [&]() -> Status {
+        Result<Statement> insert =
+            db_->Prepare("INSERT INTO refit_requests (pattern, reason, requested_ms) VALUES (?1, ?2, ?3)");
+        if (!insert.ok()) return insert.status();
+        return insert->Bind(1, pattern).Bind(2, reason).Bind(3, requested_ms).Run();
+      },
+      [] {});
+}
+
+Result<std::vector<RefitRequestRecord>> Store::Impl::TakeRefitRequests() {
+  if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
+  // Polled about once a second by a running daemon: look before taking the write lock.
+  Result<int64_t> pending = db_->QueryInt("SELECT EXISTS (SELECT 1 FROM refit_requests)");
+  if (!pending.ok()) return pending.status();
+  std::vector<RefitRequestRecord> out;
+  if (*pending == 0) return out;
+  Status status = RunTransaction(
+      "taking refit requests",
+      [&]() -> Status {
+        out.clear();
+        Result<Statement> rows =
+            db_->Prepare("SELECT id, pattern, reason, requested_ms FROM refit_requests ORDER BY id");
+        if (!rows.ok()) return rows.status();
+        PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
+          out.push_back(RefitRequestRecord{row.Int(0), row.Text(1), row.Text(2), row.Int(3)});
+          return Status::Ok();
+        }));
+        if (out.empty()) return Status::Ok();
+        Result<Statement> remove = db_->Prepare("DELETE FROM refit_requests WHERE id <= ?1");
+        if (!remove.ok()) return remove.status();
+        return remove->Bind(1, out.back().id).Run();
+      },
+      [] {});
+  if (!status.ok()) return status;
+  return out;
+}
+
+Status Store::Impl::SetSeriesProfile(std::string_view series, std::string_view profile) {
+  if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
+  Result<int64_t> id = LookupSeries(series);
+  if (!id.ok()) return id.status();
+  return RunTransaction(
+      "updating the profile of a series",
+      [&]() -> Status {
+        Result<Statement> update = db_->Prepare("UPDATE series SET profile = ?1 WHERE id = ?2");
+        if (!update.ok()) return update.status();
+        return update->Bind(1, profile).Bind(2, *id).Run();
+      },
+      [] {});
+}
+
 Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n) {
   Result<int64_t> id = LookupSeries(series);
   if (!id.ok()) return id.status();
@@ -796,6 +854,13 @@ Result<std::vector<StoredDeadLetter>> Store::RecentDeadLetters(size_t limit) {
   return impl_->RecentDeadLetters(limit);
 }
 Result<HistorySlice> Store::HistoryTail(std::string_view series, size_t n) { return impl_->HistoryTail(series, n); }
+Status Store::AddRefitRequest(std::string_view pattern, std::string_view reason, int64_t requested_ms) {
+  return impl_->AddRefitRequest(pattern, reason, requested_ms);
+}
+Result<std::vector<RefitRequestRecord>> Store::TakeRefitRequests() { return impl_->TakeRefitRequests(); }
+Status Store::SetSeriesProfile(std::string_view series, std::string_view profile) {
+  return impl_->SetSeriesProfile(series, profile);
+}
 std::optional<int64_t> Store::StoredPosition(std::string_view stream, int32_t partition) const {
   return impl_->StoredPosition(stream, partition);
 }

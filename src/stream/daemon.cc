@@ -46,6 +46,7 @@ struct Daemon::Impl : PartitionListener {
   std::string store_path;
   std::unique_ptr<CommitWriter> writer;
   std::unique_ptr<store::Store> reader;  // read-only connection for history reads (refits)
+  std::unique_ptr<RefitService> refits;  // background refits; null: additive refits inline
   // Durable positions (owner thread only): what sources resume from.
   std::map<std::pair<std::string, int32_t>, int64_t> durable_positions;
   // Positions reached by records taken into the engine, by stream index, not yet submitted.
@@ -63,10 +64,12 @@ Daemon::~Daemon() = default;
 
 Result<std::unique_ptr<Daemon>> Daemon::Open(const DaemonOptions& options, EngineOptions engine_options,
                                              ModelChooser chooser, std::unique_ptr<store::Store> store,
-                                             Clock* clock) {
+                                             Clock* clock, std::unique_ptr<RefitService> refits) {
+  if (!refits) engine_options.background_warmup = false;
   auto engine = std::make_unique<Engine>(std::move(engine_options), std::move(chooser), clock);
   std::unique_ptr<Daemon> daemon(new Daemon(options, std::move(engine), store->options().path, clock));
   size_t restored = 0, skipped = 0;
+  std::vector<RestoredSeries> restored_series;
   Status load = store->ForEachSeries([&](const store::StoredSeries& stored) -> Status {
     if (!stored.state) return Status::Ok();
     const std::string& name = stored.series.name;
@@ -81,7 +84,12 @@ Result<std::unique_ptr<Daemon>> Daemon::Open(const DaemonOptions& options, Engin
       ++skipped;
       return Status::Ok();
     }
-    if (s.ok()) ++restored;
+    if (s.ok()) {
+      ++restored;
+      if (std::optional<SeriesId> id = daemon->engine_->FindSeries(name))
+        restored_series.push_back({*id, stored.series.profile, stored.model ? stored.model->fitted_ms : 0,
+                                   stored.model ? stored.model->aicc : store::kNoValue});
+    }
     return s;
   });
   if (!load.ok()) return load.WithContext("loading stored series");
@@ -95,6 +103,10 @@ Result<std::unique_ptr<Daemon>> Daemon::Open(const DaemonOptions& options, Engin
   if (!reader.ok()) return reader.status().WithContext("opening a read connection");
   daemon->impl_->reader = std::move(reader).value();
   daemon->impl_->writer = std::make_unique<CommitWriter>(std::move(store), clock);
+  if (refits) {
+    refits->Start(*daemon->engine_, restored_series);
+    daemon->impl_->refits = std::move(refits);
+  }
   return daemon;
 }
 
@@ -125,6 +137,8 @@ void Daemon::RefitQueued(SeriesId id) {
 PartitionListener* Daemon::Listener() { return impl_.get(); }
 
 store::StoreCounters Daemon::StoreCounters() const { return impl_->writer->StoreCounters(); }
+
+const RefitService* Daemon::refits() const { return impl_->refits.get(); }
 
 namespace {
 
@@ -213,8 +227,12 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     if (std::optional<store::CommitBatch> durable = im.writer->TakeDurable()) handle_durable(std::move(*durable));
   };
   const auto submit = [&] {
-    store::CommitBatch batch = ToStoreBatch(*engine_, engine_->TakeBatch(), clock->WallMillis(), source.Streams(),
+    EngineBatch taken = engine_->TakeBatch();
+    std::vector<store::EventRecord> refit_events;
+    if (im.refits) im.refits->OnBatch(*engine_, taken, clock->WallMillis(), refit_events);
+    store::CommitBatch batch = ToStoreBatch(*engine_, std::move(taken), clock->WallMillis(), source.Streams(),
                                             im.next_offsets, im.offset_changed);
+    for (store::EventRecord& e : refit_events) batch.events.push_back(std::move(e));
     if (!batch.empty()) im.writer->Submit(std::move(batch));
     uncommitted = 0;
     last_commit_ns = clock->MonotonicNanos();
@@ -313,7 +331,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       IgnoreError(im.writer->WaitDurable(options_.poll_timeout_ms));  // wait a little, then poll again
     }
 
-    std::vector<SeriesId> refits = engine_->TakeRefitRequests();
+    std::vector<SeriesId> refits = im.refits ? std::vector<SeriesId>() : engine_->TakeRefitRequests();
     if (!refits.empty()) {
       // History must be durable through each series' last step before it is read back.
       Status drained = drain(options_.shutdown_timeout_ms);
@@ -325,6 +343,13 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     }
   }
   set_paused(false);
+  if (im.refits) {
+    // Running fits finish (each within its budget); the first drain installs them, the second
+    // commits what the installs changed.
+    im.refits->Stop();
+    Status installed = drain(options_.shutdown_timeout_ms);
+    if (!installed.ok()) spdlog::error("commit before the last refit installs failed: {}", installed.ToString());
+  }
   Status drained = drain(options_.shutdown_timeout_ms);
   im.flush_for_revoke = nullptr;
   if (!drained.ok()) {
@@ -350,6 +375,7 @@ EngineOptions EngineOptionsFromConfig(const Config& config) {
   EngineOptions out;
   out.create_series = config.series.create;
   out.max_series = static_cast<size_t>(config.series.max_count);
+  out.background_warmup = true;  // applies only when the daemon has a refit service
   for (const ProfileOptions& p : config.profiles) {
     SeriesRules r;
     r.match = p.match;

@@ -91,6 +91,8 @@ struct SeriesRuntime {
   bool warming_up = true;
   bool additive_only = false;  // a non-positive value met a multiplicative form
   bool dirty = false;
+  bool fit_pending = false;    // a WarmupRequest is out (background_warmup)
+  uint32_t epoch = 0;          // warm-up round; bumped when a round ends (fit, failure, re-seed)
   StepAligner aligner;
   AlertTracker alerts;
   model::ModelSpec spec;
@@ -107,6 +109,23 @@ int64_t CountObserved(std::span<const double> values) {
   int64_t n = 0;
   for (double v : values) n += std::isnan(v) ? 0 : 1;
   return n;
+}
+
+// Length of the shortest prefix of `values` holding `target` observations (it ends on one), or
+// 0 when there are not that many. The warm-up fit always sees this prefix, however late it runs.
+size_t WarmupPrefix(std::span<const double> values, int64_t target) {
+  int64_t n = 0;
+  for (size_t i = 0; i < values.size(); ++i)
+    if (!std::isnan(values[i]) && ++n >= target) return i + 1;
+  return 0;
+}
+
+// What the state sees of observation `y` under the profile's flag policy, and whether it is flagged.
+double PolicyInput(FlagPolicy policy, double y, const model::Band& band, bool& flagged) {
+  flagged = y < band.lower || y > band.upper;
+  if (!flagged || policy == FlagPolicy::kUpdate) return y;
+  if (policy == FlagPolicy::kClip) return y < band.lower ? band.lower : band.upper;
+  return std::numeric_limits<double>::quiet_NaN();
 }
 
 std::string ModelDetail(const ModelChoice& choice, size_t points) {
@@ -139,6 +158,7 @@ struct Engine::Impl {
   SeriesIndex index;
   EngineBatch batch;
   std::vector<SeriesId> refit_requests;
+  std::vector<WarmupRequest> warmup_requests;
 
   // Context of the record being applied, for dead letters raised while applying it.
   std::string_view raw;
@@ -212,34 +232,66 @@ struct Engine::Impl {
 
   void TryFit(SeriesId id, int64_t step) {
     SeriesRuntime& s = series[id];
-    const SeriesRules& r = rules[s.rules_index].rules;
+    const size_t prefix = WarmupPrefix(s.warmup_values, s.next_fit_at);
     ++counters.fits;
-    Result<ModelChoice> choice = chooser(s.warmup_values, r, s.additive_only);
+    FinishWarmup(id, step, prefix,
+                 chooser(std::span<const double>(s.warmup_values).first(prefix), rules[s.rules_index].rules,
+                         s.additive_only));
+  }
+
+  // Queues the warm-up fit off the owner thread (background_warmup) when enough is buffered.
+  void MaybeRequestWarmup(SeriesId id) {
+    SeriesRuntime& s = series[id];
+    if (s.fit_pending || !s.warming_up) return;
+    const size_t prefix = WarmupPrefix(s.warmup_values, s.next_fit_at);
+    if (prefix == 0) return;
+    s.fit_pending = true;
+    warmup_requests.push_back(WarmupRequest{
+        id, s.epoch, std::vector<double>(s.warmup_values.begin(), s.warmup_values.begin() + prefix), s.additive_only});
+  }
+
+  // Ends a warm-up round whose fit saw the first `prefix` buffered steps; `last_step` is the step
+  // of the newest buffered value. Steps buffered after the prefix go through the live path.
+  void FinishWarmup(SeriesId id, int64_t last_step, size_t prefix, const Result<ModelChoice>& choice) {
+    SeriesRuntime& s = series[id];
+    const SeriesRules& r = rules[s.rules_index].rules;
+    s.fit_pending = false;
+    ++s.epoch;
+    MarkDirty(id);
     if (!choice.ok()) {
       ++counters.fit_failures;
       JsonWriter w;
       w.BeginObject().Field("reason", choice.status().ToString()).EndObject();
-      batch.events.push_back({id, step, EventKind::kFitFailed, w.Take()});
-      s.next_fit_at = CountObserved(s.warmup_values) + std::max(1, r.warmup / 2);
-      // Keep at most `history` points while waiting for a fit that works.
-      if (s.warmup_values.size() > static_cast<size_t>(r.history)) {
+      batch.events.push_back({id, last_step, EventKind::kFitFailed, w.Take()});
+      s.next_fit_at = CountObserved(std::span<const double>(s.warmup_values).first(prefix)) + std::max(1, r.warmup / 2);
+      // Keep at most `history` points of the fitted prefix while waiting for a fit that works.
+      if (prefix > static_cast<size_t>(r.history))
         s.warmup_values.erase(s.warmup_values.begin(),
-                              s.warmup_values.end() - static_cast<std::ptrdiff_t>(r.history));
-      }
+                              s.warmup_values.begin() + static_cast<std::ptrdiff_t>(prefix - r.history));
+      if (opts.background_warmup) MaybeRequestWarmup(id);
       return;
     }
     Install(id, *choice);
-    // Replay the warm-up history through the same kernel the live path uses.
-    for (double v : s.warmup_values) s.update(s.params, s.state, v);
-    batch.events.push_back({id, step, EventKind::kModelChosen, ModelDetail(*choice, s.warmup_values.size())});
-    batch.models.push_back({id, step, *choice, "warmup"});
-    s.warmup_values = std::vector<double>();
+    std::vector<double> buffered = std::exchange(s.warmup_values, std::vector<double>());
+    // Replay the fitted history through the same kernel the live path uses.
+    for (size_t i = 0; i < prefix; ++i) s.update(s.params, s.state, buffered[i]);
+    const int64_t fitted_step = last_step - static_cast<int64_t>(buffered.size() - prefix);
+    batch.events.push_back({id, fitted_step, EventKind::kModelChosen, ModelDetail(*choice, prefix)});
+    batch.models.push_back({id, fitted_step, *choice, "warmup"});
+    for (size_t i = prefix; i < buffered.size(); ++i) {
+      const int64_t step = last_step - static_cast<int64_t>(buffered.size() - 1 - i);
+      const AlignedStep aligned{std::isnan(buffered[i]) ? StepKind::kGap : StepKind::kValue, step, buffered[i]};
+      if (series[id].warming_up) ApplyWarmup(id, aligned);
+      else ApplyActive(id, aligned);
+    }
   }
 
   void Reseed(SeriesId id, int64_t step) {
     SeriesRuntime& s = series[id];
     ++counters.reseeds;
     s.warming_up = true;
+    s.fit_pending = false;
+    ++s.epoch;
     s.update = nullptr;
     s.state = model::State();
     s.alerts.Reset();
@@ -264,10 +316,8 @@ struct Engine::Impl {
     }
     const model::Band band = model::OneStepBand(s.spec, mu, s.sigma * s.sigma, rr.z);
     const double y = step.value;
-    const bool flagged = y < band.lower || y > band.upper;
-    double y_state = y;
-    if (flagged && rr.rules.policy == FlagPolicy::kClip) y_state = y < band.lower ? band.lower : band.upper;
-    if (flagged && rr.rules.policy == FlagPolicy::kSkip) y_state = kNaN;
+    bool flagged = false;
+    const double y_state = PolicyInput(rr.rules.policy, y, band, flagged);
     const model::StepResult result = s.update(s.params, s.state, y_state);
     const int64_t time_ms = StepTime(rr.rules, step.step);
     if (flagged) {
@@ -292,7 +342,14 @@ struct Engine::Impl {
   void ApplyWarmup(SeriesId id, const AlignedStep& step) {
     SeriesRuntime& s = series[id];
     s.warmup_values.push_back(step.value);
-    if (step.kind == StepKind::kValue && CountObserved(s.warmup_values) >= s.next_fit_at) TryFit(id, step.step);
+    if (s.fit_pending) {
+      // The background fit is late: fit inline once rather than buffer without bound.
+      if (s.warmup_values.size() > static_cast<size_t>(rules[s.rules_index].rules.history)) TryFit(id, step.step);
+      return;
+    }
+    if (step.kind != StepKind::kValue || CountObserved(s.warmup_values) < s.next_fit_at) return;
+    if (opts.background_warmup) MaybeRequestWarmup(id);
+    else TryFit(id, step.step);
   }
 
   void Apply(SeriesId id, const AlignedStep& step) {
@@ -423,14 +480,40 @@ EngineBatch Engine::TakeBatch() {
 
 std::vector<SeriesId> Engine::TakeRefitRequests() { return std::exchange(impl_->refit_requests, {}); }
 
+std::vector<WarmupRequest> Engine::TakeWarmupRequests() { return std::exchange(impl_->warmup_requests, {}); }
+
+Status Engine::CompleteWarmup(SeriesId id, uint32_t epoch, const Result<ModelChoice>& choice) {
+  Impl& im = *impl_;
+  SeriesRuntime& s = im.series[id];
+  if (!s.warming_up || !s.fit_pending || s.epoch != epoch)
+    return Status::Aborted("warm-up fit of series '" + s.name + "' is stale (re-seeded or fitted since)");
+  im.raw = {};
+  im.stream_index = -1;
+  im.offset = -1;
+  ++counters_.fits;
+  im.FinishWarmup(id, s.aligner.last_step(), WarmupPrefix(s.warmup_values, s.next_fit_at), choice);
+  return Status::Ok();
+}
+
 Status Engine::InstallModel(SeriesId id, const ModelChoice& choice, std::span<const double> history,
-                            std::string_view reason) {
+                            std::string_view reason, size_t live_from) {
   Impl& im = *impl_;
   SeriesRuntime& s = im.series[id];
   if (s.warming_up) return Status::InvalidArgument("series '" + s.name + "' is still warming up");
+  const ResolvedRules& rr = im.rules[s.rules_index];
   model::State replayed = choice.initial;
   const model::UpdateFn update = model::SelectUpdate(choice.spec);
-  for (double v : history) {
+  const double sigma = std::sqrt(choice.initial.sigma2);  // as Install sets it, so bands match the live path
+  for (size_t i = 0; i < history.size(); ++i) {
+    double v = history[i];
+    if (i >= live_from && !std::isnan(v)) {
+      const double mu = model::PointForecast(choice.spec, choice.params, replayed, 1);
+      if (!std::isfinite(mu) || (choice.spec.needs_positive_data() && mu <= 0.0))
+        return Status::NumericFailure("catch-up of series '" + s.name + "' under " + choice.spec.Notation() +
+                                      " left the model's region");
+      bool flagged = false;
+      v = PolicyInput(rr.rules.policy, v, model::OneStepBand(choice.spec, mu, sigma * sigma, rr.z), flagged);
+    }
     const model::StepResult r = update(choice.params, replayed, v);
     if (!std::isfinite(r.mu))
       return Status::NumericFailure("replay of series '" + s.name + "' under " + choice.spec.Notation() +
@@ -563,6 +646,8 @@ Status Engine::RestoreSeries(std::string_view name, std::string_view checkpoint,
     s.state = std::move(v.state);
     s.update = model::SelectUpdate(s.spec);
     s.sigma = std::sqrt(s.state.sigma2);
+  } else if (im.opts.background_warmup) {
+    im.MaybeRequestWarmup(*id);  // the request an uninterrupted run had out (same buffered prefix)
   }
   return Status::Ok();
 }
@@ -583,7 +668,7 @@ size_t Engine::series_count() const { return impl_->series.size(); }
 SeriesView Engine::View(SeriesId id) const {
   const SeriesRuntime& s = impl_->series[id];
   SeriesView v{id, s.name, impl_->rules[s.rules_index].rules.match, s.warming_up, s.aligner.last_step(),
-               std::nullopt, s.params, s.state, s.alerts.active()};
+               std::nullopt, s.params, s.state, s.alerts.active(), s.additive_only};
   if (!s.warming_up) v.form = s.spec;
   return v;
 }

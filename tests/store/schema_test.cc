@@ -80,6 +80,31 @@ TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store
   CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
 }
 
+TEST_CASE("a version 2 store migrates to version 3 and keeps refit requests until taken", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(MigrateSchema(*db, 2).ok());
+    CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'refit_requests'") == 0);
+  }
+  auto store = testing::OpenOrDie(testing::TestOptions(dir));
+  REQUIRE(store->AddRefitRequest("queue-*", "seasonal profile drifted", 1000).ok());
+  REQUIRE(store->AddRefitRequest("pump-7", "", 2000).ok());
+  Result<std::vector<RefitRequestRecord>> taken = store->TakeRefitRequests();
+  REQUIRE(taken.ok());
+  REQUIRE(taken->size() == 2);
+  CHECK((*taken)[0].pattern == "queue-*");
+  CHECK((*taken)[0].reason == "seasonal profile drifted");
+  CHECK((*taken)[1].pattern == "pump-7");
+  CHECK((*taken)[1].requested_ms == 2000);
+  Result<std::vector<RefitRequestRecord>> again = store->TakeRefitRequests();
+  REQUIRE(again.ok());
+  CHECK(again->empty());
+  store.reset();
+  auto db = RawOpen(dir.File("store.db"));
+  CHECK(Query(*db, "PRAGMA user_version") == 3);
+}
+
 TEST_CASE("a failing migration step leaves the previous version intact", "[store]") {
   TempDir dir;
   auto db = RawOpen(dir.File("store.db"));

@@ -108,6 +108,14 @@ struct PositionRecord {
   friend bool operator==(const PositionRecord&, const PositionRecord&) = default;
 };
 
+// An explicit refit request (`plimsoll refit`): a series id or glob pattern, taken by the daemon.
+struct RefitRequestRecord {
+  int64_t id = 0;
+  std::string pattern;
+  std::string reason;
+  int64_t requested_ms = 0;
+};
+
 // Everything one group commit writes, in ONE transaction. Store::Commit takes it by const
 // reference: on failure it stays with the caller, whole, to be retried.
 struct CommitBatch {

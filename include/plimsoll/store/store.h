@@ -160,6 +160,15 @@ class Store {
   // NotFound for an unknown series.
   Result<HistorySlice> HistoryTail(std::string_view series, size_t n);
 
+  // Records an explicit refit request for the series matching `pattern` (table refit_requests).
+  // Unavailable when read-only; Busy after the retries when the file stays locked.
+  Status AddRefitRequest(std::string_view pattern, std::string_view reason, int64_t requested_ms);
+  // Reads and deletes every pending refit request in one transaction, oldest first.
+  Result<std::vector<RefitRequestRecord>> TakeRefitRequests();
+  // Records that `series` is now modelled under `profile` (after a refit for a changed profile).
+  // NotFound for an unknown series; Unavailable when read-only.
+  Status SetSeriesProfile(std::string_view series, std::string_view profile);
+
   // The stored next offset of a stream partition, or nullopt when none is stored (the
   // plimsoll::stream::PositionLookup contract). Served from memory; never touches the file.
   std::optional<int64_t> StoredPosition(std::string_view stream, int32_t partition) const;

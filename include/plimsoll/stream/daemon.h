@@ -27,6 +27,7 @@
 #include "plimsoll/store/store.h"
 #include "plimsoll/stream/decode.h"
 #include "plimsoll/stream/engine.h"
+#include "plimsoll/stream/refit_service.h"
 #include "plimsoll/stream/source.h"
 
 namespace plimsoll::stream {
@@ -75,9 +76,11 @@ class Daemon {
   // Loads every stored series (checkpoint + warm-up history) and position into a new engine,
   // then hands the store to the commit writer. Fails when the store cannot be read; series whose
   // profile no longer exists are skipped with a warning (their rows stay in the file).
+  // `refits` (optional) runs refits and warm-up fits in the background; without it the daemon
+  // fits on the owner thread (engine_options.background_warmup is then ignored).
   static Result<std::unique_ptr<Daemon>> Open(const DaemonOptions& options, EngineOptions engine_options,
                                                ModelChooser chooser, std::unique_ptr<store::Store> store,
-                                               Clock* clock);
+                                               Clock* clock, std::unique_ptr<RefitService> refits = nullptr);
   ~Daemon();
   Daemon(const Daemon&) = delete;
   Daemon& operator=(const Daemon&) = delete;
@@ -96,6 +99,8 @@ class Daemon {
   Status Run(RecordSource& source, RecordDecoder& decoder, const std::atomic<bool>& stop, OutputSink* sink = nullptr);
 
   const Engine& engine() const { return *engine_; }
+  // The background refit service given to Open, or null.
+  const RefitService* refits() const;
   const DaemonCounters& counters() const { return counters_; }
   store::StoreCounters StoreCounters() const;
 

@@ -117,6 +117,22 @@ struct EngineOptions {
   bool create_series = true;          // false: records for unknown series are dead-lettered
   size_t max_series = 10'000'000;     // creation beyond this is refused (dead letter), protects memory
   size_t dead_letter_bytes = 1024;    // raw record bytes kept per dead letter
+  // false: the first fit runs inside Observe on the owner thread (stalls it for the fit).
+  // true: the engine queues a WarmupRequest (TakeWarmupRequests) and keeps buffering the series
+  // until CompleteWarmup brings the model; a series buffering more than `history` points while it
+  // waits is fitted inline once, so memory and restart stay bounded.
+  bool background_warmup = false;
+};
+
+// A warm-up fit to run off the owner thread: `values` are the series' first buffered steps (NaN
+// for gaps) through the observation that completed the warm-up; the fit result goes back with
+// Engine::CompleteWarmup. The same buffered data always yields the same request, so a restart
+// asks for exactly the fit an uninterrupted run asked for.
+struct WarmupRequest {
+  SeriesId series;
+  uint32_t epoch;  // identifies this warm-up round; a stale completion is refused
+  std::vector<double> values;
+  bool additive_only;
 };
 
 struct EngineCounters {
@@ -142,6 +158,7 @@ struct SeriesView {
   model::Params params;
   model::State state;
   bool alert_active;
+  bool additive_only;  // a non-positive value was seen: only additive forms qualify
 };
 
 // A series checkpoint as stored (Engine::EncodeCheckpoint), decoded for readers (inspect, HTTP).
@@ -187,12 +204,25 @@ class Engine {
   // so the refit is restricted to additive forms), each once since the last call.
   std::vector<SeriesId> TakeRefitRequests();
 
+  // Warm-up fits queued since the last call (background_warmup only), each series once per round.
+  std::vector<WarmupRequest> TakeWarmupRequests();
+
+  // Brings the result of a WarmupRequest: installs the model, replays the request's values, then
+  // applies the steps buffered since through the live path (flags and alerts as if the model had
+  // been there when they arrived). A failed fit is recorded like an inline one and the warm-up
+  // continues. Aborted when the request is stale (series re-seeded or fitted since).
+  Status CompleteWarmup(SeriesId id, uint32_t epoch, const Result<ModelChoice>& choice);
+
   // Swaps in a new model for a series: replays `history` (every step from the one the choice's
   // initial state precedes through the series' last step, NaN for gaps) with the new model and
-  // replaces model and state. InvalidArgument when the series is still warming up or the replay
-  // fails; the current model stays then.
+  // replaces model and state. Values from index `live_from` on are replayed the way the live
+  // path applies them (the profile's flag policy against the new model's band, nothing emitted),
+  // so a catch-up after a background fit gives the state an inline refit at that point would have.
+  // InvalidArgument when the series is still warming up, NumericFailure when the replay fails;
+  // the current model stays then.
+  static constexpr size_t kRawReplay = static_cast<size_t>(-1);
   Status InstallModel(SeriesId id, const ModelChoice& choice, std::span<const double> history,
-                      std::string_view reason);
+                      std::string_view reason, size_t live_from = kRawReplay);
 
   // Fits the series afresh on `history` (its stored steps through its last one, NaN for gaps)
   // with the engine's chooser (additive forms only once a non-positive value was seen) and
