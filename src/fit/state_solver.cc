@@ -4,6 +4,8 @@
 #include <Eigen/Cholesky>
 #include <Eigen/Core>
 
+#include <immintrin.h>
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -15,6 +17,9 @@ namespace plimsoll::fit {
 namespace {
 
 constexpr double kInf = std::numeric_limits<double>::infinity();
+
+using JacobianMap = Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>, 0,
+                               Eigen::OuterStride<>>;
 // Gauss-Newton steps per solve; relative errors and multiplicative seasons need 3-6 from the
 // heuristic state, the cap only guards against slow progress on a flat surface.
 constexpr int kMaxSteps = 20;
@@ -25,7 +30,77 @@ constexpr int kMaxHalvings = 12;
 constexpr double kStepTolerance = 1e-12;
 constexpr double kSmallGain = 1e-10;
 
+// Rows of the Jacobian per block of the Gram kernel: 64 rows of up to 28 doubles stay in L1
+// while every 4 x 8 block of J'J accumulates over them.
+constexpr size_t kGramRows = 64;
+
+// Lower 4 x 8 blocks of J'J (J: n rows of pp doubles, pp a multiple of 4) with AVX2 FMA: eight
+// 4-wide accumulators per block, rows in L1-sized chunks. Each entry is summed over the rows in
+// order, so the result depends on the machine's instruction set only through the fused
+// multiply-adds (deterministic on one machine).
+__attribute__((target("avx2,fma"))) void GramAvx2(const double* jac, size_t n, size_t pp, double* h) {
+  for (size_t t0 = 0; t0 < n; t0 += kGramRows) {
+    const size_t t1 = std::min(n, t0 + kGramRows);
+    for (size_t i0 = 0; i0 < pp; i0 += 4) {
+      for (size_t k0 = 0; k0 <= i0; k0 += 8) {
+        const bool two = k0 + 4 <= i0;  // the second 4 columns are on or below the diagonal block
+        double* h0 = h + i0 * pp + k0;
+        __m256d a0 = _mm256_loadu_pd(h0), a1 = _mm256_loadu_pd(h0 + pp), a2 = _mm256_loadu_pd(h0 + 2 * pp),
+                a3 = _mm256_loadu_pd(h0 + 3 * pp);
+        if (two) {
+          __m256d b0 = _mm256_loadu_pd(h0 + 4), b1 = _mm256_loadu_pd(h0 + pp + 4),
+                  b2 = _mm256_loadu_pd(h0 + 2 * pp + 4), b3 = _mm256_loadu_pd(h0 + 3 * pp + 4);
+          for (size_t t = t0; t < t1; ++t) {
+            const double* row = jac + t * pp;
+            const __m256d x = _mm256_loadu_pd(row + k0), z = _mm256_loadu_pd(row + k0 + 4);
+            __m256d v = _mm256_broadcast_sd(row + i0);
+            a0 = _mm256_fmadd_pd(v, x, a0); b0 = _mm256_fmadd_pd(v, z, b0);
+            v = _mm256_broadcast_sd(row + i0 + 1);
+            a1 = _mm256_fmadd_pd(v, x, a1); b1 = _mm256_fmadd_pd(v, z, b1);
+            v = _mm256_broadcast_sd(row + i0 + 2);
+            a2 = _mm256_fmadd_pd(v, x, a2); b2 = _mm256_fmadd_pd(v, z, b2);
+            v = _mm256_broadcast_sd(row + i0 + 3);
+            a3 = _mm256_fmadd_pd(v, x, a3); b3 = _mm256_fmadd_pd(v, z, b3);
+          }
+          _mm256_storeu_pd(h0 + 4, b0); _mm256_storeu_pd(h0 + pp + 4, b1);
+          _mm256_storeu_pd(h0 + 2 * pp + 4, b2); _mm256_storeu_pd(h0 + 3 * pp + 4, b3);
+        } else {
+          for (size_t t = t0; t < t1; ++t) {
+            const double* row = jac + t * pp;
+            const __m256d x = _mm256_loadu_pd(row + k0);
+            a0 = _mm256_fmadd_pd(_mm256_broadcast_sd(row + i0), x, a0);
+            a1 = _mm256_fmadd_pd(_mm256_broadcast_sd(row + i0 + 1), x, a1);
+            a2 = _mm256_fmadd_pd(_mm256_broadcast_sd(row + i0 + 2), x, a2);
+            a3 = _mm256_fmadd_pd(_mm256_broadcast_sd(row + i0 + 3), x, a3);
+          }
+        }
+        _mm256_storeu_pd(h0, a0); _mm256_storeu_pd(h0 + pp, a1);
+        _mm256_storeu_pd(h0 + 2 * pp, a2); _mm256_storeu_pd(h0 + 3 * pp, a3);
+      }
+    }
+  }
+}
+
 }  // namespace
+
+// J'J of the first p columns (lower triangle filled; p x p).
+Eigen::MatrixXd StateSolver::Gram() const {
+  const Eigen::Index p = p_;
+  Eigen::MatrixXd h(p, p);
+  if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma")) {
+    const size_t pp = static_cast<size_t>(pp_);
+    gram_.assign(pp * pp, 0.0);
+    GramAvx2(jacobian_.data(), static_cast<size_t>(n_obs_), pp, gram_.data());
+    for (Eigen::Index i = 0; i < p; ++i) {
+      for (Eigen::Index k = 0; k <= i; ++k) h(i, k) = gram_[static_cast<size_t>(i) * pp + static_cast<size_t>(k)];
+    }
+    return h;
+  }
+  const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
+  h.setZero();
+  h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
+  return h;
+}
 
 bool StateSolver::Supports(const model::ModelSpec& spec) {
   return spec.trend == model::TrendType::kNone || spec.trend == model::TrendType::kAdditive ||
@@ -36,7 +111,7 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
     : spec_(spec), y_(y), estimate_season_(estimate_season && spec.has_season()) {
   p_ = 1 + (spec.has_trend() ? 1 : 0) + (estimate_season_ ? spec.period - 1 : 0);
   for (double v : y) n_obs_ += std::isnan(v) ? 0 : 1;
-  pp_ = (p_ + 1) / 2 * 2;
+  pp_ = (p_ + 3) / 4 * 4;
   const size_t pp = static_cast<size_t>(pp_);
   // One spare row: the pass writes a gap's row before knowing it will not keep it.
   jacobian_.resize((static_cast<size_t>(n_obs_) + 1) * pp);
@@ -71,8 +146,8 @@ typedef double Pair __attribute__((vector_size(16)));
 
 // The tangent-linear pass for one shape, all columns of a step fused in one loop. Columns are
 // padded to an even count (the pad columns start at zero and stay zero).
-template <bool kTrend, model::SeasonType kSeason, bool kMultError>
-bool TangentPass(std::span<const double> y, const model::Params& params, double phi, double level, double trend,
+template <typename V, bool kTrend, model::SeasonType kSeason, bool kMultError>
+__attribute__((always_inline)) inline bool TangentPass(std::span<const double> y, const model::Params& params, double phi, double level, double trend,
                  std::vector<double>& season_work, size_t pp, double* __restrict tl, double* __restrict tb,
                  double* __restrict t_season, double* __restrict jacobian, double* __restrict residuals,
                  double* __restrict grad_log_mu, bool needs_positive) {
@@ -81,17 +156,17 @@ bool TangentPass(std::span<const double> y, const model::Params& params, double 
   constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
   const size_t m = season_work.size();
   const double alpha = params.alpha, beta = params.beta, gamma = params.gamma;
-  const size_t pairs = pp / 2;
+  const size_t pairs = pp / (sizeof(V) / sizeof(double));
   double l = level, b = kTrend ? trend : 0.0;
   size_t row = 0;
   size_t k = 0;  // seasonal slot of this observation
-  Pair* __restrict vl = reinterpret_cast<Pair*>(tl);
-  Pair* __restrict vb = reinterpret_cast<Pair*>(tb);
-  Pair* __restrict vg = reinterpret_cast<Pair*>(grad_log_mu);
+  V* __restrict vl = reinterpret_cast<V*>(tl);
+  V* __restrict vb = reinterpret_cast<V*>(tb);
+  V* __restrict vg = reinterpret_cast<V*>(grad_log_mu);
   for (size_t t = 0; t < y.size(); ++t) {
     const double lp = l + phi * b;
     double s = 0.0, mu = lp;
-    Pair* __restrict vs = kHasSeason ? reinterpret_cast<Pair*>(t_season + k * pp) : nullptr;
+    V* __restrict vs = kHasSeason ? reinterpret_cast<V*>(t_season + k * pp) : nullptr;
     if constexpr (kAddSeason) {
       s = season_work[k];
       mu = lp + s;
@@ -110,12 +185,12 @@ bool TangentPass(std::span<const double> y, const model::Params& params, double 
     const double inv_lp = kMultSeason ? 1.0 / lp : 0.0;
     const double e_lp2 = kMultSeason ? e * inv_lp * inv_lp : 0.0;
     const double scaled = kMultSeason ? e / s : e;
-    Pair* __restrict vj = reinterpret_cast<Pair*>(jacobian + row * pp);
+    V* __restrict vj = reinterpret_cast<V*>(jacobian + row * pp);
     const double inv_mu = 1.0 / mu;
     const double c = kMultError ? -yt * inv_mu * inv_mu : 0.0;
     for (size_t i = 0; i < pairs; ++i) {
-      const Pair dlp = kTrend ? vl[i] + phi * vb[i] : vl[i];
-      Pair dmu = dlp, ds{};
+      const V dlp = kTrend ? vl[i] + phi * vb[i] : vl[i];
+      V dmu = dlp, ds{};
       if constexpr (kAddSeason) {
         ds = vs[i];
         dmu = dlp + ds;
@@ -123,8 +198,8 @@ bool TangentPass(std::span<const double> y, const model::Params& params, double 
         ds = vs[i];
         dmu = dlp * s + lp * ds;
       }
-      const Pair de = -keep * dmu;
-      const Pair dsc = kMultSeason ? de * inv_s - e_s2 * ds : de;
+      const V de = -keep * dmu;
+      const V dsc = kMultSeason ? de * inv_s - e_s2 * ds : de;
       vl[i] = dlp + alpha * dsc;
       if constexpr (kTrend) vb[i] = phi * vb[i] + beta * dsc;
       if constexpr (kAddSeason) vs[i] = ds + gamma * de;
@@ -146,6 +221,21 @@ bool TangentPass(std::span<const double> y, const model::Params& params, double 
     ++row;
   }
   return true;
+}
+
+// Four doubles (AVX): the same pass in 4-wide registers where the CPU has AVX2. No fused
+// multiply-adds are enabled, so both widths give bit-identical tangents. The buffers are
+// 32-byte aligned (AlignedVector, rows of a multiple of 4 doubles).
+typedef double Quad __attribute__((vector_size(32)));
+
+template <bool kTrend, model::SeasonType kSeason, bool kMultError>
+__attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, const model::Params& params, double phi,
+                                                     double level, double trend, std::vector<double>& season_work,
+                                                     size_t pp, double* tl, double* tb, double* t_season,
+                                                     double* jacobian, double* residuals, double* grad_log_mu,
+                                                     bool needs_positive) {
+  return TangentPass<Quad, kTrend, kSeason, kMultError>(y, params, phi, level, trend, season_work, pp, tl, tb, t_season,
+                                                        jacobian, residuals, grad_log_mu, needs_positive);
 }
 
 // The gradient of -loglik with respect to (alpha, beta, gamma, phi) with the state held fixed: one
@@ -301,10 +391,18 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
   season_work_ = season;
   const double phi = spec_.damped() ? params.phi : 1.0;
   const bool positive = spec_.needs_positive_data();
+  const bool avx2 = __builtin_cpu_supports("avx2");
   auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
-    return TangentPass<kTrend, kSeason, kMultError>(y_, params, phi, level, trend, season_work_, pp, t_level_.data(),
-                                                    t_trend_.data(), t_season_.data(), jacobian_.data(),
-                                                    residuals_.data(), grad_log_mu_.data(), positive);
+    if (avx2) {
+      return TangentPassAvx2<kTrend, kSeason, kMultError>(y_, params, phi, level, trend, season_work_, pp,
+                                                          t_level_.data(), t_trend_.data(), t_season_.data(),
+                                                          jacobian_.data(), residuals_.data(), grad_log_mu_.data(),
+                                                          positive);
+    }
+    return TangentPass<Pair, kTrend, kSeason, kMultError>(y_, params, phi, level, trend, season_work_, pp,
+                                                          t_level_.data(), t_trend_.data(), t_season_.data(),
+                                                          jacobian_.data(), residuals_.data(), grad_log_mu_.data(),
+                                                          positive);
   };
   auto by_season = [&]<bool kTrend, bool kMultError>() {
     switch (spec_.season) {
@@ -322,9 +420,6 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
   }
   return mult_error ? by_season.template operator()<false, true>() : by_season.template operator()<false, false>();
 }
-
-using JacobianMap = Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>, 0,
-                               Eigen::OuterStride<>>;
 
 double StateSolver::Solve(const model::Params& params, double& level, double& trend,
                           std::vector<double>& season, int* passes) {
@@ -352,8 +447,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     if (!Tangents(params, level, trend, season)) return kInf;
     const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
-    Eigen::MatrixXd h = Eigen::MatrixXd::Zero(p, p);
-    h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
+    Eigen::MatrixXd h = Gram();
     h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
     const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(jac.transpose() * r));
     const double sse_start = r.squaredNorm();
@@ -385,8 +479,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     if (refresh) {
-      Eigen::MatrixXd h = Eigen::MatrixXd::Zero(p, p);
-      h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
+      Eigen::MatrixXd h = Gram();
       // A tiny ridge keeps the solve defined when a direction is (nearly) unidentified, e.g. a
       // trend and a seasonal ramp on a short history.
       const double ridge = 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);

@@ -12,6 +12,10 @@
 //
 // Thread-safety: one solver per fit (it owns scratch space); no shared state.
 
+#include <Eigen/Core>
+
+#include <cstddef>
+#include <new>
 #include <span>
 #include <vector>
 
@@ -20,6 +24,19 @@
 #include "plimsoll/model/state.h"
 
 namespace plimsoll::fit {
+
+// Allocates on 32-byte boundaries, so the tangent pass may use aligned 4-wide loads and stores.
+template <typename T>
+struct Aligned32Allocator {
+  using value_type = T;
+  Aligned32Allocator() = default;
+  template <typename U>
+  explicit Aligned32Allocator(const Aligned32Allocator<U>&) {}
+  T* allocate(size_t n) { return static_cast<T*>(::operator new(n * sizeof(T), std::align_val_t{32})); }
+  void deallocate(T* p, size_t) { ::operator delete(p, std::align_val_t{32}); }
+  friend bool operator==(const Aligned32Allocator&, const Aligned32Allocator&) { return true; }
+};
+using AlignedVector = std::vector<double, Aligned32Allocator<double>>;
 
 class StateSolver {
  public:
@@ -50,6 +67,8 @@ class StateSolver {
  private:
   // -loglik at the given state, +infinity when infeasible.
   double Objective(const model::Params& params, double level, double trend, const std::vector<double>& season);
+  // J'J of the Jacobian's p columns, lower triangle (AVX2 kernel where the CPU has it).
+  Eigen::MatrixXd Gram() const;
   // Fills jacobian_ (rows = observations, p columns), residuals_ and grad_log_mu_.
   bool Tangents(const model::Params& params, double level, double trend, const std::vector<double>& season);
 
@@ -57,14 +76,15 @@ class StateSolver {
   std::span<const double> y_;
   bool estimate_season_;
   int p_ = 0;       // free state coordinates
-  int pp_ = 0;      // p_ rounded up to even: the tangent pass handles columns in pairs
+  int pp_ = 0;      // p_ rounded up to a multiple of 4 (pairs in the tangent pass, 4-wide Gram blocks)
   int n_obs_ = 0;   // non-missing observations
-  std::vector<double> jacobian_;      // n_obs x pp, row-major: d residual_t / d state
+  AlignedVector jacobian_;            // n_obs x pp, row-major: d residual_t / d state
   std::vector<double> residuals_;     // n_obs
-  std::vector<double> grad_log_mu_;   // pp: d sum log mu_t / d state (relative error only)
-  std::vector<double> t_level_, t_trend_, t_season_;  // tangents of the state, pp per state
+  AlignedVector grad_log_mu_;         // pp: d sum log mu_t / d state (relative error only)
+  AlignedVector t_level_, t_trend_, t_season_;  // tangents of the state, pp per state
   std::vector<double> t_param_season_;                 // 4 per slot: seasonal tangents to the parameters
   std::vector<double> season_work_, trial_season_;
+  mutable std::vector<double> gram_;  // pp x pp scratch of Gram()
 };
 
 }  // namespace plimsoll::fit
