@@ -58,6 +58,9 @@ constexpr int kProbeBase = 8;
 // stopped tends to stop at the same point, a wider or narrower one often gets past it.
 constexpr int kMaxRestarts = 3;
 constexpr std::array<double, kMaxRestarts + 1> kRestartStepScale = {1.0, 5.0, 0.2, 1.0};
+// A gradient run that comes within this fraction of every box width of an earlier run's end
+// point (and is no better there) is stopped as having joined that basin.
+constexpr double kJoinRadius = 0.01;
 
 struct Range {
   double lo;
@@ -314,6 +317,7 @@ class Problem {
   void set_running(nlopt::opt* opt) { running_ = opt; }
   int evaluations() const { return evaluations_; }
   bool time_exhausted() const { return time_exhausted_; }
+  bool joined_known() const { return false; }
   double best_f() const { return best_f_; }
   const std::vector<double>& best_z() const { return best_z_; }
   const Params& params() const { return params_; }
@@ -428,6 +432,10 @@ class Profile {
       if (!solver_.ParamGradient(full_.params(), level, trend, season_, g)) return kPenalty;
       full_.SmoothingGradient(zs, g, grad);
     }
+    if (running_ != nullptr && join_check_ && NearKnownOptimum(zs, f)) {
+      joined_known_ = true;
+      running_->force_stop();
+    }
     if (f < best_f_) {
       best_f_ = f;
       best_z_.assign(zs, zs + dim());
@@ -443,9 +451,19 @@ class Profile {
     return static_cast<Profile*>(data)->Evaluate(z, grad);
   }
 
-  void set_running(nlopt::opt* opt) { running_ = opt; }
+  void set_running(nlopt::opt* opt) {
+    running_ = opt;
+    if (opt != nullptr) joined_known_ = false;
+  }
   int evaluations() const { return passes_; }
   bool time_exhausted() const { return time_exhausted_; }
+  // True when the last run was stopped because it reached the basin of an earlier run's optimum.
+  bool joined_known() const { return joined_known_; }
+  // Records the end point of a finished run (see NearKnownOptimum).
+  void AddKnownOptimum(std::vector<double> z, double f) { known_.push_back({std::move(z), f}); }
+  // Whether runs from now on are stopped when they join a known basin (runs from the start
+  // points only: a probe or a finishing run starts at a known optimum on purpose).
+  void set_join_check(bool on) { join_check_ = on; }
   double best_f() const { return best_f_; }
   const std::vector<double>& best_z() const { return best_z_; }
   const Params& best_params() const { return best_params_; }
@@ -460,6 +478,27 @@ class Profile {
   const Clock& clock_;
   int64_t deadline_nanos_;
   std::vector<double> z_, lower_, upper_, step_;
+  // A run from another start that comes this close (every smoothing coordinate, in box units)
+  // to an earlier run's end point, without being better there, is in that basin: finishing it
+  // would find the same optimum again.
+  bool NearKnownOptimum(const double* zs, double f) const {
+    for (const KnownOptimum& k : known_) {
+      if (f < k.f) continue;
+      bool near = true;
+      for (size_t i = 0; i < k.z.size() && near; ++i) {
+        near = std::fabs(zs[i] - k.z[i]) <= kJoinRadius * (upper_[i] - lower_[i]);
+      }
+      if (near) return true;
+    }
+    return false;
+  }
+  struct KnownOptimum {
+    std::vector<double> z;
+    double f;
+  };
+  std::vector<KnownOptimum> known_;
+  bool join_check_ = false;
+  bool joined_known_ = false;
   int passes_ = 0;
   bool time_exhausted_ = false;
   nlopt::opt* running_ = nullptr;
@@ -474,7 +513,7 @@ class Profile {
 // or a Profile).
 template <typename P>
 StopReason RunOnce(P& problem, nlopt::algorithm algorithm, std::vector<double> z, int max_evals, double tolerance,
-                   double step_scale = 1.0) {
+                   double step_scale = 1.0, std::vector<double>* end = nullptr, double* end_f = nullptr) {
   nlopt::opt opt(algorithm, static_cast<unsigned>(problem.dim()));
   opt.set_lower_bounds(problem.lower());
   opt.set_upper_bounds(problem.upper());
@@ -495,14 +534,19 @@ StopReason RunOnce(P& problem, nlopt::algorithm algorithm, std::vector<double> z
     const nlopt::result r = opt.optimize(z, f);
     if (r == nlopt::MAXEVAL_REACHED) reason = StopReason::kEvaluationBudget;
   } catch (const nlopt::forced_stop&) {
-    // A Problem stops only for time; a Profile also when its pass budget runs out.
-    reason = problem.time_exhausted() ? StopReason::kTimeBudget : StopReason::kEvaluationBudget;
+    // A Problem stops only for time; a Profile also when its pass budget runs out or when the
+    // run joined an earlier run's basin (an ending like convergence, to a known point).
+    reason = problem.time_exhausted()   ? StopReason::kTimeBudget
+             : problem.joined_known() ? StopReason::kConverged
+                                      : StopReason::kEvaluationBudget;
   } catch (const nlopt::roundoff_limited&) {
     reason = StopReason::kRoundoff;
   } catch (const std::exception&) {
     reason = StopReason::kRoundoff;
   }
   problem.set_running(nullptr);
+  if (end != nullptr) *end = z;
+  if (end_f != nullptr) *end_f = f;
   if (problem.time_exhausted()) reason = StopReason::kTimeBudget;
   return reason;
 }
@@ -548,14 +592,19 @@ StopReason Search(P& problem, std::vector<std::vector<double>>& start_points, in
 StopReason GradientSearch(Profile& profile, std::vector<std::vector<double>>& start_points, int probe_evaluations,
                           int budget_end, double tolerance) {
   StopReason best_stop = StopReason::kConverged;
+  profile.set_join_check(true);
   for (const std::vector<double>& z : start_points) {
     const int left = budget_end - profile.evaluations();
     if (left <= 0) return StopReason::kEvaluationBudget;
     const double before = profile.best_f();
-    const StopReason stop = RunOnce(profile, nlopt::LD_LBFGS, z, left, tolerance);
+    std::vector<double> end = z;
+    double end_f = 0.0;
+    const StopReason stop = RunOnce(profile, nlopt::LD_LBFGS, z, left, tolerance, 1.0, &end, &end_f);
     if (profile.best_f() < before) best_stop = stop;
     if (stop == StopReason::kTimeBudget || stop == StopReason::kEvaluationBudget) return stop;
+    if (!profile.joined_known() && end_f < kPenalty) profile.AddKnownOptimum(std::move(end), end_f);
   }
+  profile.set_join_check(false);
   if (profile.best_z().empty()) return best_stop;
   for (int round = 0; round < kMaxRestarts; ++round) {
     const int left = budget_end - profile.evaluations();
