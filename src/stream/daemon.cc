@@ -9,6 +9,7 @@
 #include <utility>
 
 #include "plimsoll/stream/config.h"
+#include "stream/bucket_clock.h"
 #include "stream/commit_writer.h"
 
 namespace plimsoll::stream {
@@ -202,7 +203,14 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   int64_t last_clock_ns = last_commit_ns;
   int64_t last_reack_ns = last_commit_ns;
   constexpr int64_t kReacknowledgeNanos = 1'000'000'000;
-  int64_t newest_record_ms = INT64_MIN;
+  BucketClock bucket_clock(/*follow_wall=*/!options_.event_time);
+  {
+    // Restored series: a feed silent since the restart still gets its buckets closed.
+    int64_t newest_restored_ms = INT64_MIN;
+    for (SeriesId id = 0; id < engine_->series_count(); ++id)
+      newest_restored_ms = std::max(newest_restored_ms, engine_->SeriesPosition(id).last_time_ms);
+    if (newest_restored_ms != INT64_MIN) bucket_clock.OnRecords(newest_restored_ms, clock->WallMillis());
+  }
   bool paused = false;
   int64_t paused_since_ns = 0;
   Status source_status;
@@ -285,6 +293,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       im.next_offsets.resize(stream_count, 0);
       im.offset_changed.resize(stream_count, false);
     }
+    int64_t newest_record_ms = INT64_MIN;
     for (const RawRecord& rec : records) {
       DecodedRecord decoded;
       Status status = decoder.Decode(rec, decoded);
@@ -300,6 +309,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       im.next_offsets[rec.stream_index] = rec.next_offset;
       im.offset_changed[rec.stream_index] = true;
     }
+    if (newest_record_ms != INT64_MIN) bucket_clock.OnRecords(newest_record_ms, clock->WallMillis());
     counters_.records.fetch_add(records.size(), std::memory_order_relaxed);
     if (!records.empty()) counters_.position.store(records.back().next_offset, std::memory_order_relaxed);
     uncommitted += records.size();
@@ -319,8 +329,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     }
     if (now_ns - last_clock_ns >= options_.commit_ms * 1'000'000 / 2) {
       last_clock_ns = now_ns;
-      if (!options_.event_time) engine_->AdvanceClock(clock->WallMillis());
-      else if (newest_record_ms != INT64_MIN) engine_->AdvanceClock(newest_record_ms);
+      if (std::optional<int64_t> bucket_now = bucket_clock.Now(clock->WallMillis())) engine_->AdvanceClock(*bucket_now);
     }
     const bool due = uncommitted >= options_.commit_records || now_ns - last_commit_ns >= options_.commit_ms * 1'000'000;
     if (due && !im.writer->busy()) {

@@ -38,8 +38,10 @@ struct DaemonOptions {
   size_t max_uncommitted_records = 1'000'000;  // beyond this, input pauses until the writer catches up
   size_t poll_records = 4096;          // records per Poll call
   int poll_timeout_ms = 20;            // how long an idle Poll waits
-  // Aggregated buckets close when the newest RECORD time passes their end + allowed lateness
-  // (replays of files, deterministic), instead of the wall clock (live feeds).
+  // Aggregated buckets close when the bucket clock passes their end + allowed lateness. The
+  // clock is the newest record time; false (live feeds): it also runs on with wall time while
+  // no records arrive (silent feeds close); true (file replays, simulated time): record times
+  // only, deterministic. See src/stream/bucket_clock.h.
   bool event_time = false;
   int64_t shutdown_timeout_ms = 30'000;  // how long the last commit may take at shutdown
   int history_restore_points = 2000;     // history read per warming-up series at start-up
