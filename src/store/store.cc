@@ -8,6 +8,7 @@
 #include <cmath>
 #include <cstring>
 #include <map>
+#include <span>
 #include <thread>
 #include <unordered_map>
 
@@ -146,7 +147,7 @@ class Store::Impl {
   Result<std::vector<AlertRecord>> RecentAlerts(std::string_view series, size_t limit);
   Result<std::vector<EventRecord>> RecentEvents(std::string_view series, size_t limit);
   Result<std::vector<StoredDeadLetter>> RecentDeadLetters(size_t limit);
-  Result<HistorySlice> HistoryTail(std::string_view series, size_t n);
+  Result<HistorySlice> HistoryTail(std::string_view series, size_t n, int64_t through_step);
   Status AddRefitRequest(std::string_view pattern, std::string_view reason, int64_t requested_ms);
   Result<std::vector<RefitRequestRecord>> TakeRefitRequests();
   Status SetSeriesProfile(std::string_view series, std::string_view profile);
@@ -168,7 +169,7 @@ class Store::Impl {
   Status CountRow(Tally& tally);
   Result<int64_t> Resolve(std::string_view name, std::string_view what) const;
   Result<int64_t> LookupSeries(std::string_view name);
-  Status AddToChunks(int64_t series, const std::vector<std::pair<int64_t, double>>& points);
+  Status AddToChunks(int64_t series, std::span<const LogPoint> points);
 
   // Series name -> integer key for the writer; rolled back with the transaction that added names.
   std::unordered_map<std::string, int64_t, StringHash, std::equal_to<>> series_ids_;
@@ -422,7 +423,7 @@ Status Store::Impl::Commit(const CommitBatch& batch) {
   return Status::Ok();
 }
 
-Status Store::Impl::AddToChunks(int64_t series, const std::vector<std::pair<int64_t, double>>& points) {
+Status Store::Impl::AddToChunks(int64_t series, std::span<const LogPoint> points) {
   const auto cap = static_cast<int64_t>(options_.history_chunk_points);
   struct Chunk {
     bool valid = false;
@@ -454,7 +455,9 @@ Status Store::Impl::AddToChunks(int64_t series, const std::vector<std::pair<int6
     chunk.dirty = false;
     return write->Run();
   };
-  for (const auto& [step, value] : points) {
+  for (const LogPoint& point : points) {
+    const int64_t step = point.step;
+    const double value = point.value;
     if (!chunk.Fits(step, cap)) {
       PLIMSOLL_RETURN_IF_ERROR(flush());
       chunk = Chunk{};
@@ -496,7 +499,7 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
       "history compaction",
       [&]() -> Status {
         moved = 0;
-        std::map<int64_t, std::vector<std::pair<int64_t, double>>> by_series;
+        std::vector<LogPoint> points;  // log order; grouped by series below
         int64_t max_seq = -1;
         {
           Result<Statement> rows = db_->Prepare("SELECT seq, points FROM history_log ORDER BY seq LIMIT ?1");
@@ -505,16 +508,24 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
           PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
             max_seq = row.Int(0);
             std::string_view blob = row.BlobView(1);
+            points.reserve(points.size() + blob.size() / kLogPointBytes);
             for (size_t at = 0; at + kLogPointBytes <= blob.size(); at += kLogPointBytes) {
-              LogPoint p = ReadPoint(blob.data() + at);
-              by_series[p.series].emplace_back(p.step, p.value);
+              points.push_back(ReadPoint(blob.data() + at));
               ++moved;
             }
             return Status::Ok();
           }));
         }
         if (max_seq < 0) return Status::Ok();
-        for (const auto& [series, points] : by_series) PLIMSOLL_RETURN_IF_ERROR(AddToChunks(series, points));
+        // A sort instead of a map of per-series vectors (a tree walk per point was the top of the
+        // writer's profile). Stable: a series' points keep log order, so a later point still wins.
+        std::stable_sort(points.begin(), points.end(),
+                         [](const LogPoint& a, const LogPoint& b) { return a.series < b.series; });
+        for (size_t begin = 0, end = 0; begin < points.size(); begin = end) {
+          while (end < points.size() && points[end].series == points[begin].series) ++end;
+          PLIMSOLL_RETURN_IF_ERROR(
+              AddToChunks(points[begin].series, std::span<const LogPoint>(points).subspan(begin, end - begin)));
+        }
         Result<Statement> erase = db_->Prepare("DELETE FROM history_log WHERE seq <= ?1");
         if (!erase.ok()) return erase.status();
         erase->Bind(1, max_seq);
@@ -713,7 +724,7 @@ Status Store::Impl::SetSeriesProfile(std::string_view series, std::string_view p
       [] {});
 }
 
-Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n) {
+Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n, int64_t through_step) {
   Result<int64_t> id = LookupSeries(series);
   if (!id.ok()) return id.status();
   HistorySlice slice;
@@ -727,7 +738,7 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n)
       std::string_view blob = row.BlobView(0);
       for (size_t at = 0; at + kLogPointBytes <= blob.size(); at += kLogPointBytes) {
         LogPoint p = ReadPoint(blob.data() + at);
-        if (p.series == *id) logged.emplace_back(p.step, p.value);
+        if (p.series == *id && p.step <= through_step) logged.emplace_back(p.step, p.value);
       }
       return Status::Ok();
     }));
@@ -748,9 +759,10 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n)
     if (!row.ok()) return row.status();
     if (!*row) break;
     const int64_t first = chunks->Int(0);
+    if (first > through_step) continue;  // wholly after the window
     std::vector<double> values = ReadDoubles(chunks->BlobView(1));
     if (values.empty()) continue;
-    if (taken.empty()) last = std::max(last, first + static_cast<int64_t>(values.size()) - 1);
+    if (taken.empty()) last = std::max(last, std::min(first + static_cast<int64_t>(values.size()) - 1, through_step));
     earliest = std::min(earliest, first);
     taken.emplace_back(first, std::move(values));
     if (first <= last - static_cast<int64_t>(n) + 1) break;
@@ -853,7 +865,9 @@ Result<std::vector<EventRecord>> Store::RecentEvents(std::string_view series, si
 Result<std::vector<StoredDeadLetter>> Store::RecentDeadLetters(size_t limit) {
   return impl_->RecentDeadLetters(limit);
 }
-Result<HistorySlice> Store::HistoryTail(std::string_view series, size_t n) { return impl_->HistoryTail(series, n); }
+Result<HistorySlice> Store::HistoryTail(std::string_view series, size_t n, int64_t through_step) {
+  return impl_->HistoryTail(series, n, through_step);
+}
 Status Store::AddRefitRequest(std::string_view pattern, std::string_view reason, int64_t requested_ms) {
   return impl_->AddRefitRequest(pattern, reason, requested_ms);
 }

@@ -53,6 +53,22 @@ class SeriesIndex {
     ++size_;
   }
 
+  // Starts loading the slot a lookup of `hash` reads first.
+  void Prefetch(uint64_t hash) const {
+    if (!slots_.empty()) __builtin_prefetch(&slots_[hash & mask_]);
+  }
+  // The first id whose tag matches `hash`, without comparing names: a guess for prefetching the
+  // series' data (Find confirms it).
+  std::optional<SeriesId> Candidate(uint64_t hash) const {
+    if (slots_.empty()) return std::nullopt;
+    const uint64_t tag = hash >> 32;
+    for (size_t i = hash & mask_;; i = (i + 1) & mask_) {
+      const uint64_t slot = slots_[i];
+      if (slot == 0) return std::nullopt;
+      if ((slot >> 32) == tag) return static_cast<SeriesId>(slot & 0xffffffffu) - 1;
+    }
+  }
+
   size_t size() const { return size_; }
   size_t ResidentBytes() const { return slots_.capacity() * sizeof(uint64_t); }
 
@@ -78,11 +94,17 @@ class SeriesIndex {
   size_t size_ = 0;
 };
 
+static_assert(static_cast<uint8_t>(FlagPolicy::kUpdate) == static_cast<uint8_t>(model::BandPolicy::kUpdate) &&
+                  static_cast<uint8_t>(FlagPolicy::kClip) == static_cast<uint8_t>(model::BandPolicy::kClip) &&
+                  static_cast<uint8_t>(FlagPolicy::kSkip) == static_cast<uint8_t>(model::BandPolicy::kSkip),
+              "flag policies map one to one onto the model's band policies");
+
 // Profile rules plus what the engine derives from them once.
 struct ResolvedRules {
   SeriesRules rules;
   AlertRule alert;
   double z;  // band half-width in standard deviations
+  model::BandPolicy policy;
 };
 
 struct SeriesRuntime {
@@ -97,13 +119,22 @@ struct SeriesRuntime {
   AlertTracker alerts;
   model::ModelSpec spec;
   model::Params params;
-  model::UpdateFn update = nullptr;
-  double sigma = 0.0;
+  // The live step (forecast, band, flag, update at once); gap steps and replays dispatch on `spec`
+  // (rare), so the plain kernel is not kept per series.
+  model::BandedUpdateFn banded = nullptr;
+  double band_sd = 0.0;  // BandSd(state.sigma2): the band's standard deviation
   model::State state;
   int64_t last_time_ms = 0;
   int64_t next_fit_at = 0;             // warm-up observations needed before the next fit attempt
   std::vector<double> warmup_values;   // warm-up history, NaN for gaps; empty once fitted
 };
+
+// The band's standard deviation as the engine has always formed it: sigma = sqrt(sigma2), then
+// OneStepBand's sqrt(sigma * sigma); kept bit for bit so stored bands do not move.
+double BandSd(double sigma2) {
+  const double sigma = std::sqrt(sigma2);
+  return std::sqrt(sigma * sigma);
+}
 
 int64_t CountObserved(std::span<const double> values) {
   int64_t n = 0;
@@ -158,6 +189,21 @@ struct Engine::Impl {
   SeriesIndex index;
   EngineBatch batch;
   std::vector<SeriesId> refit_requests;
+  bool any_aggregated = false;    // some profile aggregates on a grid: AdvanceClock has work
+  std::vector<uint64_t> hashes;   // ObserveBatch scratch
+  std::vector<SeriesId> guesses;  // ObserveBatch scratch: Candidate() per record, kNoGuess if none
+  static constexpr SeriesId kNoGuess = std::numeric_limits<SeriesId>::max();
+
+  // Starts loading what applying a record to series `id` reads: the runtime record.
+  void PrefetchSeries(SeriesId id) const {
+    const char* p = reinterpret_cast<const char*>(&series[id]);
+    for (size_t line = 0; line < sizeof(SeriesRuntime); line += 64) __builtin_prefetch(p + line);
+  }
+  // ... and the seasonal slot its next update writes (the runtime record must have arrived).
+  void PrefetchSeason(SeriesId id) const {
+    const model::State& st = series[id].state;
+    if (!st.season.empty()) __builtin_prefetch(st.season.data() + st.head, 1);
+  }
   std::vector<WarmupRequest> warmup_requests;
 
   // Context of the record being applied, for dead letters raised while applying it.
@@ -224,9 +270,9 @@ struct Engine::Impl {
     SeriesRuntime& s = series[id];
     s.spec = choice.spec;
     s.params = choice.params;
-    s.update = model::SelectUpdate(choice.spec);
+    s.banded = model::SelectBandedUpdate(choice.spec);
     s.state = choice.initial;
-    s.sigma = std::sqrt(choice.initial.sigma2);
+    s.band_sd = BandSd(choice.initial.sigma2);
     s.warming_up = false;
   }
 
@@ -274,7 +320,8 @@ struct Engine::Impl {
     Install(id, *choice);
     std::vector<double> buffered = std::exchange(s.warmup_values, std::vector<double>());
     // Replay the fitted history through the same kernel the live path uses.
-    for (size_t i = 0; i < prefix; ++i) s.update(s.params, s.state, buffered[i]);
+    const model::UpdateFn update = model::SelectUpdate(s.spec);
+    for (size_t i = 0; i < prefix; ++i) update(s.params, s.state, buffered[i]);
     const int64_t fitted_step = last_step - static_cast<int64_t>(buffered.size() - prefix);
     batch.events.push_back({id, fitted_step, EventKind::kModelChosen, ModelDetail(*choice, prefix)});
     batch.models.push_back({id, fitted_step, *choice, "warmup"});
@@ -292,7 +339,7 @@ struct Engine::Impl {
     s.warming_up = true;
     s.fit_pending = false;
     ++s.epoch;
-    s.update = nullptr;
+    s.banded = nullptr;
     s.state = model::State();
     s.alerts.Reset();
     s.warmup_values.clear();
@@ -304,27 +351,28 @@ struct Engine::Impl {
     SeriesRuntime& s = series[id];
     const ResolvedRules& rr = rules[s.rules_index];
     if (step.kind == StepKind::kGap) {
-      s.update(s.params, s.state, kNaN);
+      model::SelectUpdate(s.spec)(s.params, s.state, kNaN);
       return;
     }
-    const double mu = model::PointForecast(s.spec, s.params, s.state, 1);
-    if (!std::isfinite(mu) || (s.spec.needs_positive_data() && mu <= 0.0)) {
+    // One prediction serves the band, the flag and the update (same bits as PointForecast +
+    // OneStepBand + PolicyInput + UpdateFn, which InstallModel's catch-up uses).
+    const double y = step.value;
+    const model::BandedStep r = s.banded(s.params, s.state, y, model::BandRule{rr.z, s.band_sd, rr.policy});
+    if (!r.valid) [[unlikely]] {
       // The model has left the region where it means anything: start over from this point.
       Reseed(id, step.step);
       ApplyWarmup(id, step);
       return;
     }
-    const model::Band band = model::OneStepBand(s.spec, mu, s.sigma * s.sigma, rr.z);
-    const double y = step.value;
-    bool flagged = false;
-    const double y_state = PolicyInput(rr.rules.policy, y, band, flagged);
-    const model::StepResult result = s.update(s.params, s.state, y_state);
+    const bool flagged = r.flagged;
     const int64_t time_ms = StepTime(rr.rules, step.step);
     if (flagged) {
       ++counters.flags;
+      const double mu = r.mu;
+      const double sigma = std::sqrt(s.state.sigma2);
       const double innovation = s.spec.error == model::ErrorType::kMultiplicative ? (y - mu) / mu : y - mu;
-      batch.flags.push_back(FlagRecord{id, step.step, time_ms, y, result.mu, band.lower, band.upper,
-                                       rr.rules.band_level, s.sigma > 0 ? innovation / s.sigma : 0.0, s.spec});
+      batch.flags.push_back(FlagRecord{id, step.step, time_ms, y, mu, r.lower, r.upper, rr.rules.band_level,
+                                       sigma > 0 ? innovation / sigma : 0.0, s.spec});
     }
     switch (s.alerts.Observe(flagged, rr.alert)) {
       case AlertTransition::kRaised:
@@ -363,6 +411,21 @@ struct Engine::Impl {
     batch.history.push_back({id, step.step, step.value});
     if (s.warming_up) ApplyWarmup(id, step);
     else ApplyActive(id, step);
+  }
+
+  // `hash` is SeriesIndex::Hash(rec.series).
+  void ObserveRecord(const Observation& rec, uint64_t hash) {
+    raw = rec.raw;
+    stream_index = rec.stream_index;
+    offset = rec.offset;
+    if (!std::isfinite(rec.value)) [[unlikely]] {
+      DeadLetter("value of series '" + std::string(rec.series) + "' is not a finite number",
+                 StatusCode::kInvalidArgument);
+      return;
+    }
+    std::optional<SeriesId> id = Find(rec.series, hash);
+    if (!id) id = Create(rec.series, hash);
+    if (id) Observe(*id, rec.time_ms, rec.value);
   }
 
   void Observe(SeriesId id, int64_t time_ms, double value) {
@@ -422,8 +485,10 @@ Engine::Engine(EngineOptions options, ModelChooser chooser, Clock* clock) : opti
     if (r.warmup < 2) throw std::invalid_argument(where + ": warmup must be >= 2");
     if (r.interval_ms < 0) throw std::invalid_argument(where + ": interval must not be negative");
     if (r.history < r.warmup) throw std::invalid_argument(where + ": history must be >= warmup");
-    impl_->rules.push_back(ResolvedRules{
-        r, AlertRule{r.breach_run, r.breach_window, r.clear_run}, model::TwoSidedZ(100.0 * r.band_level)});
+    impl_->rules.push_back(ResolvedRules{r, AlertRule{r.breach_run, r.breach_window, r.clear_run},
+                                         model::TwoSidedZ(100.0 * r.band_level),
+                                         static_cast<model::BandPolicy>(static_cast<uint8_t>(r.policy))});
+    if (r.aggregate != AggregateKind::kNone && r.interval_ms > 0) impl_->any_aggregated = true;
   }
 }
 
@@ -431,18 +496,33 @@ Engine::~Engine() = default;
 
 void Engine::Observe(std::string_view series, int64_t time_ms, double value, std::string_view raw,
                      int32_t stream_index, int64_t offset) {
+  impl_->ObserveRecord(Observation{series, time_ms, value, raw, stream_index, offset}, SeriesIndex::Hash(series));
+}
+
+void Engine::ObserveBatch(std::span<const Observation> records) {
+  // Applying a record waits on memory three times in a row (index slot, series record, seasonal
+  // slot), each a likely cache miss with many series. Records are independent until applied, so
+  // the loop starts those loads for records ahead: slots kSlotAhead records ahead, series records
+  // kSeriesAhead ahead (from the slot's tag match), seasonal slots kSeasonAhead ahead.
+  constexpr size_t kSlotAhead = 24, kSeriesAhead = 16, kSeasonAhead = 8;
   Impl& im = *impl_;
-  im.raw = raw;
-  im.stream_index = stream_index;
-  im.offset = offset;
-  if (!std::isfinite(value)) {
-    im.DeadLetter("value of series '" + std::string(series) + "' is not a finite number", StatusCode::kInvalidArgument);
-    return;
+  const size_t n = records.size();
+  im.hashes.resize(n);
+  im.guesses.assign(n, Impl::kNoGuess);
+  for (size_t i = 0; i < n; ++i) im.hashes[i] = SeriesIndex::Hash(records[i].series);
+  for (size_t i = 0; i < std::min(n, kSlotAhead); ++i) im.index.Prefetch(im.hashes[i]);
+  for (size_t i = 0; i < n; ++i) {
+    if (i + kSlotAhead < n) im.index.Prefetch(im.hashes[i + kSlotAhead]);
+    if (i + kSeriesAhead < n) {
+      if (std::optional<SeriesId> guess = im.index.Candidate(im.hashes[i + kSeriesAhead])) {
+        im.guesses[i + kSeriesAhead] = *guess;
+        im.PrefetchSeries(*guess);
+      }
+    }
+    if (i + kSeasonAhead < n && im.guesses[i + kSeasonAhead] != Impl::kNoGuess)
+      im.PrefetchSeason(im.guesses[i + kSeasonAhead]);
+    im.ObserveRecord(records[i], im.hashes[i]);
   }
-  const uint64_t hash = SeriesIndex::Hash(series);
-  std::optional<SeriesId> id = im.Find(series, hash);
-  if (!id) id = im.Create(series, hash);
-  if (id) im.Observe(*id, time_ms, value);
 }
 
 void Engine::RejectRecord(std::string_view raw, const Status& why, int32_t stream_index, int64_t offset) {
@@ -454,6 +534,7 @@ void Engine::RejectRecord(std::string_view raw, const Status& why, int32_t strea
 
 void Engine::AdvanceClock(int64_t now_ms) {
   Impl& im = *impl_;
+  if (!im.any_aggregated) return;  // only aggregated grids close by the clock
   im.raw = {};
   im.stream_index = -1;
   im.offset = -1;
@@ -644,8 +725,8 @@ Status Engine::RestoreSeries(std::string_view name, std::string_view checkpoint,
   s.alerts = decoded->alerts;
   if (!s.warming_up) {
     s.state = std::move(v.state);
-    s.update = model::SelectUpdate(s.spec);
-    s.sigma = std::sqrt(s.state.sigma2);
+    s.banded = model::SelectBandedUpdate(s.spec);
+    s.band_sd = BandSd(s.state.sigma2);
   } else if (im.opts.background_warmup) {
     im.MaybeRequestWarmup(*id);  // the request an uninterrupted run had out (same buffered prefix)
   }

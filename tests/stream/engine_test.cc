@@ -292,3 +292,80 @@ TEST_CASE("invalid profiles fail at construction naming the profile", "[stream]"
 }
 
 }  // namespace plimsoll::stream
+
+namespace plimsoll::stream {
+
+TEST_CASE("ObserveBatch has exactly the effect of Observe record by record", "[stream]") {
+  // Many series in shuffled order, with new series, late and duplicate steps, non-finite values,
+  // unmatched names and spikes, fed one record at a time and in blocks of varying size.
+  std::vector<SeriesRules> profiles = {Profile("q-*", kMinute, 4)};
+  Harness single(profiles), batched(profiles);
+  struct Rec {
+    std::string series;
+    int64_t time_ms;
+    double value;
+    std::string raw;
+  };
+  std::vector<Rec> recs;
+  uint64_t lcg = 12345;
+  const auto next = [&] { return (lcg = lcg * 6364136223846793005ULL + 1442695040888963407ULL) >> 33; };
+  for (int k = 0; k < 40; ++k) {
+    for (int j = 0; j < 150; ++j) {
+      const int i = static_cast<int>(next() % 200);
+      const std::string name = (i % 41 == 0 ? "other-" : "q-") + std::to_string(i);
+      double value = 50.0 + i + 3.0 * std::sin(0.2 * k + i) + (next() % 29 == 0 ? 40.0 : 0.0);
+      if (next() % 211 == 0) value = std::nan("");
+      const int64_t step = k - (next() % 17 == 0 ? 1 : 0);  // some late or duplicate
+      recs.push_back({name, step * kMinute + static_cast<int64_t>(next() % 1000), value,
+                      name + "@" + std::to_string(recs.size())});
+    }
+  }
+  for (size_t r = 0; r < recs.size(); ++r)
+    single.engine->Observe(recs[r].series, recs[r].time_ms, recs[r].value, recs[r].raw, 0, static_cast<int64_t>(r));
+  std::vector<Observation> block;
+  for (size_t r = 0; r < recs.size();) {
+    const size_t n = std::min(recs.size() - r, static_cast<size_t>(1 + next() % 300));
+    block.clear();
+    for (size_t k = r; k < r + n; ++k)
+      block.push_back({recs[k].series, recs[k].time_ms, recs[k].value, recs[k].raw, 0, static_cast<int64_t>(k)});
+    batched.engine->ObserveBatch(block);
+    r += n;
+  }
+  const EngineBatch a = single.engine->TakeBatch();
+  const EngineBatch b = batched.engine->TakeBatch();
+  REQUIRE(a.observations == b.observations);
+  REQUIRE(a.flags.size() == b.flags.size());
+  REQUIRE(!a.flags.empty());
+  for (size_t i = 0; i < a.flags.size(); ++i) {
+    CHECK(a.flags[i].series == b.flags[i].series);
+    CHECK(a.flags[i].step == b.flags[i].step);
+    CHECK(a.flags[i].expected == b.flags[i].expected);
+    CHECK(a.flags[i].lower == b.flags[i].lower);
+    CHECK(a.flags[i].score == b.flags[i].score);
+  }
+  REQUIRE(a.alerts.size() == b.alerts.size());
+  REQUIRE(a.history.size() == b.history.size());
+  for (size_t i = 0; i < a.history.size(); ++i) {
+    CHECK(a.history[i].series == b.history[i].series);
+    CHECK(a.history[i].step == b.history[i].step);
+  }
+  REQUIRE(a.dead_letters.size() == b.dead_letters.size());
+  REQUIRE(a.dead_letters.size() > 20);
+  for (size_t i = 0; i < a.dead_letters.size(); ++i) {
+    CHECK(a.dead_letters[i].raw == b.dead_letters[i].raw);
+    CHECK(a.dead_letters[i].reason == b.dead_letters[i].reason);
+    CHECK(a.dead_letters[i].offset == b.dead_letters[i].offset);
+  }
+  REQUIRE(a.events.size() == b.events.size());
+  CHECK(a.dirty == b.dirty);
+  REQUIRE(single.engine->series_count() == batched.engine->series_count());
+  for (SeriesId id = 0; id < single.engine->series_count(); ++id) {
+    INFO(single.engine->SeriesName(id));
+    CHECK(single.engine->SeriesName(id) == batched.engine->SeriesName(id));
+    CHECK(single.engine->EncodeCheckpoint(id) == batched.engine->EncodeCheckpoint(id));
+  }
+  CHECK(single.engine->counters().flags == batched.engine->counters().flags);
+  CHECK(single.engine->counters().dead_letters == batched.engine->counters().dead_letters);
+}
+
+}  // namespace plimsoll::stream

@@ -155,10 +155,12 @@ class Store {
   Result<std::vector<EventRecord>> RecentEvents(std::string_view series, size_t limit);
   Result<std::vector<StoredDeadLetter>> RecentDeadLetters(size_t limit);
 
-  // The last `n` steps of a series' history (ending at its newest stored step), compacted chunks
-  // and the not-yet-compacted log together. Empty slice when the series has no history;
-  // NotFound for an unknown series.
-  Result<HistorySlice> HistoryTail(std::string_view series, size_t n);
+  // The last `n` steps of a series' history ending at its newest stored step no later than
+  // `through_step`, compacted chunks and the not-yet-compacted log together. History can be
+  // durable ahead of the series' checkpoint (see stream::DaemonOptions::checkpoint_ms); a restore
+  // passes the checkpoint's step. Empty slice when the series has no history there; NotFound for
+  // an unknown series.
+  Result<HistorySlice> HistoryTail(std::string_view series, size_t n, int64_t through_step = INT64_MAX);
 
   // Records an explicit refit request for the series matching `pattern` (table refit_requests).
   // Unavailable when read-only; Busy after the retries when the file stays locked.

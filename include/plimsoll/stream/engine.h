@@ -135,6 +135,16 @@ struct WarmupRequest {
   bool additive_only;
 };
 
+// One decoded record for Engine::ObserveBatch; the views must stay valid for the call.
+struct Observation {
+  std::string_view series;
+  int64_t time_ms;
+  double value;
+  std::string_view raw;  // the record as received (dead letters keep a prefix of it)
+  int32_t stream_index;  // RecordSource::Streams() index, -1 when not from a source
+  int64_t offset;
+};
+
 struct EngineCounters {
   uint64_t observations = 0;  // accepted records
   uint64_t steps = 0;         // model updates including gap steps
@@ -190,6 +200,10 @@ class Engine {
   // a multiplicative form, ...) become dead letters carrying `raw`; never fails.
   void Observe(std::string_view series, int64_t time_ms, double value, std::string_view raw,
                int32_t stream_index, int64_t offset);
+
+  // Applies `records` in order with exactly the effect of calling Observe on each; faster for
+  // many records (it loads each record's series data while earlier records are applied).
+  void ObserveBatch(std::span<const Observation> records);
 
   // Records a record that could not be decoded.
   void RejectRecord(std::string_view raw, const Status& why, int32_t stream_index, int64_t offset);
