@@ -331,3 +331,36 @@ TEST_CASE("admissible region fits stay admissible", "[fit]") {
 
 }  // namespace
 }  // namespace plimsoll::fit
+
+namespace plimsoll::fit {
+namespace {
+
+// In a selection, each multiplicative-error form with additive components starts from its
+// additive-error twin's optimum (one start instead of three): it must end at least as high as
+// the same form fitted on its own with the generic starts, on positive seasonal data of both
+// error types.
+TEST_CASE("twin-seeded multiplicative-error fits in a selection match standalone fits", "[fit][select]") {
+  for (ErrorType error : {ErrorType::kAdditive, ErrorType::kMultiplicative}) {
+    const auto y = SeasonalSeries(240, 19, error);
+    FitOptions o;
+    o.period = 12;
+    auto sel = SelectModel(y, o);
+    REQUIRE(sel.ok());
+    int seeded = 0;
+    for (const Candidate& c : sel->candidates) {
+      if (!c.fit || c.spec.error != ErrorType::kMultiplicative || c.spec.season == SeasonType::kMultiplicative) {
+        continue;
+      }
+      ++seeded;
+      auto alone = FitModel(c.spec, y, o);
+      REQUIRE(alone.ok());
+      INFO(c.spec.Notation() << ": in selection " << c.fit->loglik << ", alone " << alone->loglik);
+      CHECK(c.fit->loglik >= alone->loglik - 1e-6 * std::fabs(alone->loglik));
+      CHECK(c.fit->converged);
+    }
+    CHECK(seeded == 6);  // M error with trend N, A, Ad and season N, A
+  }
+}
+
+}  // namespace
+}  // namespace plimsoll::fit

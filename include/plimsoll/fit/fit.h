@@ -5,10 +5,11 @@
 // The objective is -loglik from model::EvaluateLikelihood (concentrated Gaussian likelihood),
 // minimised over the smoothing parameters, phi and the initial states (level, trend, m-1
 // seasonal states; the m-th follows from the normalisation). For trends N/A/Ad (the default
-// candidates) NLopt's BOBYQA searches the smoothing parameters only and the best initial state
-// for each of their values is solved for (Gauss-Newton, exact in one step for additive error
-// with additive components; src/fit/state_solver.h); other forms and the admissible region
-// search everything with BOBYQA (see src/fit/fit.cc for why BOBYQA). In the usual region the
+// candidates) in the usual region only the smoothing parameters are searched, by NLopt's L-BFGS
+// on the exact gradient of the profile, and the best initial state for each of their values is
+// solved for (Gauss-Newton, exact in one step for additive error with additive components;
+// src/fit/state_solver.h); other forms and the admissible region search everything with BOBYQA
+// (see src/fit/fit.cc for both choices). In the usual region the
 // search runs on boxes: alpha, beta* = beta / alpha, gamma* = gamma / (1 - alpha) each in
 // [1e-4, 1 - 1e-4] and phi in [0.8, 0.98], the bounds the reference library uses.
 //
@@ -66,11 +67,15 @@ struct FitOptions {
   // point and reports "time budget". Makes results depend on machine speed when it binds.
   double max_seconds_per_form = 0.0;
   // Optimiser starts per form, 1..6. All start at the heuristic state; the first with alpha 0.5,
-  // beta* 0.1, gamma* 0.1, phi 0.97, the others with other smoothing values. With more than
-  // one, each start gets a short screening run and the full run continues from the best point
-  // found; up to 3 restarts with fresh trust regions follow while they improve. Trade-off: the
-  // likelihood surfaces are often multimodal (3 starts matched or beat the reference library
-  // on all 42 reference fits, 1 start missed 4), each start costs ~8 evaluations per dimension.
+  // beta* 0.1, gamma* 0.1, phi 0.97, the others with other smoothing values. Concentrated
+  // search (default forms, usual region): each start runs to convergence (stopped early when it
+  // reaches an earlier start's optimum), then short wide BOBYQA probes around the best point.
+  // In SelectModel a multiplicative-error form with additive components starts instead from
+  // its additive-error twin's optimum when that form was fitted earlier in the list (one start).
+  // Full search: each start gets a short screening run and the full run continues from the best
+  // point found; up to 3 restarts with fresh trust regions follow while they improve.
+  // Trade-off: the likelihood surfaces are often multimodal (3 starts matched or beat the
+  // reference library on all 42 reference fits), each start costs 10-30 evaluations.
   int starts = 3;
   // Convergence: relative change of -loglik below this ends a start. Validated in (0, 1e-2].
   double relative_tolerance = 1e-10;
