@@ -147,10 +147,13 @@ typedef double Pair __attribute__((vector_size(16)));
 // The tangent-linear pass for one shape, all columns of a step fused in one loop. Columns are
 // padded to an even count (the pad columns start at zero and stay zero).
 template <typename V, bool kTrend, model::SeasonType kSeason, bool kMultError>
-__attribute__((always_inline)) inline bool TangentPass(std::span<const double> y, const model::Params& params, double phi, double level, double trend,
-                 std::vector<double>& season_work, size_t pp, double* __restrict tl, double* __restrict tb,
-                 double* __restrict t_season, double* __restrict jacobian, double* __restrict residuals,
-                 double* __restrict grad_log_mu, bool needs_positive) {
+__attribute__((always_inline)) inline bool TangentPass(std::span<const double> y, const model::Params& params,
+                                                       double phi, double level, double trend,
+                                                       std::vector<double>& season_work, size_t pp,
+                                                       double* __restrict tl, double* __restrict tb,
+                                                       double* __restrict t_season, double* __restrict jacobian,
+                                                       double* __restrict residuals,
+                                                       double* __restrict grad_log_mu, bool needs_positive) {
   constexpr bool kAddSeason = kSeason == model::SeasonType::kAdditive;
   constexpr bool kMultSeason = kSeason == model::SeasonType::kMultiplicative;
   constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;

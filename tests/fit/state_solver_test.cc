@@ -118,7 +118,8 @@ TEST_CASE("the parameter gradient matches central differences of the likelihood"
       double* d = i == 0 ? &down.alpha : i == 1 ? &down.beta : i == 2 ? &down.gamma : &down.phi;
       *u += h;
       *d -= h;
-      const double numeric = (NegLoglik(*spec, up, 395, 0.25, season, y) - NegLoglik(*spec, down, 395, 0.25, season, y)) / (2 * h);
+      const double numeric =
+          (NegLoglik(*spec, up, 395, 0.25, season, y) - NegLoglik(*spec, down, 395, 0.25, season, y)) / (2 * h);
       INFO(form << " parameter " << i << ": analytic " << g[i] << " numeric " << numeric);
       CHECK(g[i] == Approx(numeric).epsilon(1e-5).margin(1e-3));
     }
