@@ -39,12 +39,10 @@ std::string_view AlertKindText(AlertKind kind) { return kind == AlertKind::kRais
 
 double RealOrNaN(const Statement& stmt, int col) { return stmt.IsNull(col) ? kNoValue : stmt.Real(col); }
 
-void AppendPoint(std::string& out, int64_t series, int64_t step, double value) {
-  char buf[kLogPointBytes];
-  std::memcpy(buf, &series, 8);
-  std::memcpy(buf + 8, &step, 8);
-  std::memcpy(buf + 16, &value, 8);
-  out.append(buf, kLogPointBytes);
+void WritePoint(char* out, int64_t series, int64_t step, double value) {
+  std::memcpy(out, &series, 8);
+  std::memcpy(out + 8, &step, 8);
+  std::memcpy(out + 16, &value, 8);
 }
 
 struct LogPoint {
@@ -177,6 +175,7 @@ class Store::Impl {
   std::map<std::pair<std::string, int32_t>, int64_t, std::less<>> positions_;
   int64_t log_points_ = 0;  // points in history_log awaiting compaction
   std::string pack_buffer_;
+  std::vector<int64_t> history_keys_;  // WriteBatch: key of each name in batch.history.series
 };
 
 Status Store::Impl::Load() {
@@ -287,18 +286,20 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
   }
   if (!batch.history.empty()) {
     // The whole interval's observations as one packed row: one B-tree insert instead of one per point.
-    pack_buffer_.clear();
-    pack_buffer_.reserve(batch.history.size() * kLogPointBytes);
-    int64_t last_id = -1;
-    std::string_view last_name;
-    for (const HistoryPoint& p : batch.history) {
-      if (last_id < 0 || p.series != last_name) {  // engines often emit runs of one series
-        Result<int64_t> id = Resolve(p.series, "history point");
-        if (!id.ok()) return id.status();
-        last_id = *id;
-        last_name = p.series;
-      }
-      AppendPoint(pack_buffer_, last_id, p.step, p.value);
+    history_keys_.clear();
+    for (const std::string& name : batch.history.series) {
+      Result<int64_t> id = Resolve(name, "history point");
+      if (!id.ok()) return id.status();
+      history_keys_.push_back(*id);
+    }
+    pack_buffer_.resize(batch.history.size() * kLogPointBytes);
+    char* out = pack_buffer_.data();
+    for (const HistoryBatch::Point& p : batch.history.points) {
+      if (p.series >= history_keys_.size())
+        return Status::InvalidArgument("history point names series index " + std::to_string(p.series) + " of " +
+                                       std::to_string(history_keys_.size()));
+      WritePoint(out, history_keys_[p.series], p.step, p.value);
+      out += kLogPointBytes;
     }
     Result<Statement> stmt = db_->Prepare("INSERT INTO history_log(count, points) VALUES (?1, ?2)");
     if (!stmt.ok()) return stmt.status();

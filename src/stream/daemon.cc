@@ -4,7 +4,11 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <functional>
+#include <iterator>
+#include <span>
+#include <string>
 #include <map>
 #include <utility>
 
@@ -30,6 +34,39 @@ double IfUsed(bool used, double value) { return used ? value : store::kNoValue; 
 
 }  // namespace
 
+namespace {
+
+constexpr uint32_t kNoSlot = UINT32_MAX;
+
+// What the daemon carries from one group commit to the next checkpoint (owner thread only).
+struct Pending {
+  // Positions reached by records taken into the engine, by stream index, not yet checkpointed.
+  std::vector<int64_t> next_offsets;
+  std::vector<bool> offset_changed;
+  // Series changed since the last checkpoint, each once (is_dirty by SeriesId).
+  std::vector<SeriesId> dirty;
+  std::vector<uint8_t> is_dirty;
+  // Events and dead letters are not idempotent: they wait for the checkpoint, which also stores
+  // the positions past the records that caused them, so a restart never writes them twice.
+  std::vector<store::EventRecord> events;
+  std::vector<store::DeadLetterRecord> dead_letters;
+  size_t records = 0;  // records polled since the last checkpoint
+  int64_t last_checkpoint_ns = 0;
+  std::vector<uint32_t> history_slot;  // ToStoreBatch scratch by SeriesId, kNoSlot between calls
+
+  void AddDirty(std::span<const SeriesId> ids) {
+    for (SeriesId id : ids) {
+      if (id >= is_dirty.size()) is_dirty.resize(std::max<size_t>(id + 1, is_dirty.size() * 9 / 8), 0);
+      if (is_dirty[id] == 0) {
+        is_dirty[id] = 1;
+        dirty.push_back(id);
+      }
+    }
+  }
+};
+
+}  // namespace
+
 struct Daemon::Impl : PartitionListener {
   void OnAssign(std::span<const StreamId> streams) override {
     for (const StreamId& s : streams) spdlog::info("assigned {}[{}]", s.name, s.partition);
@@ -50,9 +87,7 @@ struct Daemon::Impl : PartitionListener {
   std::unique_ptr<RefitService> refits;  // background refits; null: additive refits inline
   // Durable positions (owner thread only): what sources resume from.
   std::map<std::pair<std::string, int32_t>, int64_t> durable_positions;
-  // Positions reached by records taken into the engine, by stream index, not yet submitted.
-  std::vector<int64_t> next_offsets;
-  std::vector<bool> offset_changed;
+  Pending pending;
 };
 
 Daemon::Daemon(const DaemonOptions& options, std::unique_ptr<Engine> engine, std::string store_path, Clock* clock)
@@ -75,7 +110,10 @@ Result<std::unique_ptr<Daemon>> Daemon::Open(const DaemonOptions& options, Engin
     if (!stored.state) return Status::Ok();
     const std::string& name = stored.series.name;
     auto fetch = [&]() -> Result<std::vector<double>> {
-      Result<store::HistorySlice> slice = store->HistoryTail(name, static_cast<size_t>(options.history_restore_points));
+      // History may be durable beyond the checkpoint (group commits between checkpoints): take the
+      // steps through the checkpoint's own.
+      Result<store::HistorySlice> slice =
+          store->HistoryTail(name, static_cast<size_t>(options.history_restore_points), stored.state->step);
       if (!slice.ok()) return slice.status();
       return std::move(slice->values);
     };
@@ -144,9 +182,9 @@ const RefitService* Daemon::refits() const { return impl_->refits.get(); }
 namespace {
 
 // Turns the engine's id-keyed batch into the store's rows (names, encoded checkpoints).
+// Everything but states and positions (CompleteBatch adds those at a checkpoint).
 store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch&& batch, int64_t now_ms,
-                                std::span<const StreamId> streams, std::vector<int64_t>& next_offsets,
-                                std::vector<bool>& offset_changed) {
+                                std::span<const StreamId> streams, Pending& pending) {
   store::CommitBatch out;
   const auto name = [&](SeriesId id) -> const std::string& { return engine.SeriesName(id); };
   for (const EngineEvent& e : batch.events) {
@@ -162,13 +200,19 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch&& batch, int64
                                             IfUsed(f.damped(), m.choice.params.phi), m.choice.initial.sigma2,
                                             m.choice.loglik, m.choice.aicc, now_ms, m.reason});
   }
-  out.states.reserve(batch.dirty.size());
-  for (SeriesId id : batch.dirty) {
-    const Engine::Position pos = engine.SeriesPosition(id);
-    out.states.push_back({name(id), pos.last_step, pos.last_time_ms, engine.EncodeCheckpoint(id)});
+  // Each series named once per commit; points refer to it by index.
+  std::vector<uint32_t>& history_slot = pending.history_slot;
+  if (history_slot.size() < engine.series_count()) history_slot.resize(engine.series_count(), kNoSlot);
+  out.history.points.reserve(batch.history.size());
+  for (const HistoryPoint& h : batch.history) {
+    uint32_t& slot = history_slot[h.series];
+    if (slot == kNoSlot) {
+      slot = static_cast<uint32_t>(out.history.series.size());
+      out.history.series.push_back(name(h.series));
+    }
+    out.history.points.push_back({slot, h.step, h.value});
   }
-  out.history.reserve(batch.history.size());
-  for (const HistoryPoint& h : batch.history) out.history.push_back({name(h.series), h.step, h.value});
+  for (const HistoryPoint& h : batch.history) history_slot[h.series] = kNoSlot;
   for (const FlagRecord& f : batch.flags)
     out.flags.push_back(store::FlagRecord{name(f.series), f.step, f.time_ms, f.value, f.expected, f.lower, f.upper,
                                           f.level, f.score, f.form.Notation()});
@@ -183,12 +227,42 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch&& batch, int64
         from_stream ? streams[d.stream_index].partition : 0, d.offset, std::move(d.raw), std::move(d.reason),
         static_cast<int32_t>(d.code)});
   }
-  for (size_t i = 0; i < offset_changed.size() && i < streams.size(); ++i) {
-    if (!offset_changed[i]) continue;
-    out.positions.push_back({streams[i].name, streams[i].partition, next_offsets[i]});
-    offset_changed[i] = false;
-  }
   return out;
+}
+
+// Between checkpoints: holds the batch's events and dead letters for the next checkpoint; the
+// rest (series and model upserts, history, flags and alerts with their ids) is idempotent, so a
+// restart from the last checkpoint re-derives it identically. At a checkpoint: adds what was
+// held, the states of every series changed since the last checkpoint and the positions.
+void CompleteBatch(const Engine& engine, store::CommitBatch& out, std::span<const StreamId> streams, Pending& pending,
+                   bool checkpoint) {
+  if (!checkpoint) {
+    std::move(out.events.begin(), out.events.end(), std::back_inserter(pending.events));
+    std::move(out.dead_letters.begin(), out.dead_letters.end(), std::back_inserter(pending.dead_letters));
+    out.events.clear();
+    out.dead_letters.clear();
+    return;
+  }
+  if (!pending.events.empty()) {
+    std::move(out.events.begin(), out.events.end(), std::back_inserter(pending.events));
+    out.events = std::exchange(pending.events, {});
+  }
+  if (!pending.dead_letters.empty()) {
+    std::move(out.dead_letters.begin(), out.dead_letters.end(), std::back_inserter(pending.dead_letters));
+    out.dead_letters = std::exchange(pending.dead_letters, {});
+  }
+  out.states.reserve(pending.dirty.size());
+  for (SeriesId id : pending.dirty) {
+    const Engine::Position pos = engine.SeriesPosition(id);
+    out.states.push_back({engine.SeriesName(id), pos.last_step, pos.last_time_ms, engine.EncodeCheckpoint(id)});
+    pending.is_dirty[id] = 0;
+  }
+  pending.dirty.clear();
+  for (size_t i = 0; i < pending.offset_changed.size() && i < streams.size(); ++i) {
+    if (!pending.offset_changed[i]) continue;
+    out.positions.push_back({streams[i].name, streams[i].partition, pending.next_offsets[i]});
+    pending.offset_changed[i] = false;
+  }
 }
 
 }  // namespace
@@ -198,6 +272,19 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   Clock* clock = im.clock;
   std::vector<RawRecord> records;
   records.reserve(options_.poll_records);
+  // Decoded records of one poll, applied with one Engine::ObserveBatch. The decoder's series view
+  // lasts one record, so the ids are copied into `names` (ends in `name_ends`).
+  std::vector<Observation> observations;
+  std::string names;
+  std::vector<size_t> name_ends;
+  const auto apply_decoded = [&] {
+    for (size_t k = 0, begin = 0; k < observations.size(); begin = name_ends[k++])
+      observations[k].series = std::string_view(names).substr(begin, name_ends[k] - begin);
+    engine_->ObserveBatch(observations);
+    observations.clear();
+    names.clear();
+    name_ends.clear();
+  };
   size_t uncommitted = 0;
   int64_t last_commit_ns = clock->MonotonicNanos();
   int64_t last_clock_ns = last_commit_ns;
@@ -234,21 +321,34 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   const auto take_durable = [&] {
     if (std::optional<store::CommitBatch> durable = im.writer->TakeDurable()) handle_durable(std::move(*durable));
   };
-  const auto submit = [&] {
+  // `checkpoint`: the commit must store states and positions (drain: shutdown, revoke, refits).
+  const auto submit = [&](bool checkpoint) {
     EngineBatch taken = engine_->TakeBatch();
     std::vector<store::EventRecord> refit_events;
     if (im.refits) im.refits->OnBatch(*engine_, taken, clock->WallMillis(), refit_events);
-    store::CommitBatch batch = ToStoreBatch(*engine_, std::move(taken), clock->WallMillis(), source.Streams(),
-                                            im.next_offsets, im.offset_changed);
+    Pending& pending = im.pending;
+    pending.AddDirty(taken.dirty);
+    pending.records += uncommitted;
+    const int64_t now_ns = clock->MonotonicNanos();
+    checkpoint = checkpoint || now_ns - pending.last_checkpoint_ns >= options_.checkpoint_ms * 1'000'000 ||
+                 (options_.checkpoint_records_per_state > 0 &&
+                  pending.dirty.size() * options_.checkpoint_records_per_state <= pending.records);
+    store::CommitBatch batch =
+        ToStoreBatch(*engine_, std::move(taken), clock->WallMillis(), source.Streams(), pending);
     for (store::EventRecord& e : refit_events) batch.events.push_back(std::move(e));
+    CompleteBatch(*engine_, batch, source.Streams(), pending, checkpoint);
+    if (checkpoint) {
+      pending.records = 0;
+      pending.last_checkpoint_ns = now_ns;
+    }
     if (!batch.empty()) im.writer->Submit(std::move(batch));
     uncommitted = 0;
-    last_commit_ns = clock->MonotonicNanos();
+    last_commit_ns = now_ns;
   };
   // Commits everything and waits until it is durable (shutdown, refits).
   const auto drain = [&](int64_t timeout_ms) -> Status {
     take_durable();
-    submit();
+    submit(true);
     const int64_t deadline = clock->MonotonicNanos() + timeout_ms * 1'000'000;
     while (im.writer->busy()) {
       take_durable();
@@ -289,26 +389,30 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       break;
     }
     const size_t stream_count = source.Streams().size();
-    if (im.next_offsets.size() < stream_count) {
-      im.next_offsets.resize(stream_count, 0);
-      im.offset_changed.resize(stream_count, false);
+    if (im.pending.next_offsets.size() < stream_count) {
+      im.pending.next_offsets.resize(stream_count, 0);
+      im.pending.offset_changed.resize(stream_count, false);
     }
     int64_t newest_record_ms = INT64_MIN;
     for (const RawRecord& rec : records) {
       DecodedRecord decoded;
       Status status = decoder.Decode(rec, decoded);
       if (!status.ok()) {
+        apply_decoded();  // dead letters stay in record order
         counters_.decode_errors.fetch_add(1, std::memory_order_relaxed);
         engine_->RejectRecord(rec.payload, status, rec.stream_index, rec.offset);
       } else if (decoded.skip) {
         counters_.skipped_lines.fetch_add(1, std::memory_order_relaxed);
       } else {
-        engine_->Observe(decoded.series, decoded.time_ms, decoded.value, rec.payload, rec.stream_index, rec.offset);
+        names.append(decoded.series);
+        name_ends.push_back(names.size());
+        observations.push_back({{}, decoded.time_ms, decoded.value, rec.payload, rec.stream_index, rec.offset});
         newest_record_ms = std::max(newest_record_ms, decoded.time_ms);
       }
-      im.next_offsets[rec.stream_index] = rec.next_offset;
-      im.offset_changed[rec.stream_index] = true;
+      im.pending.next_offsets[rec.stream_index] = rec.next_offset;
+      im.pending.offset_changed[rec.stream_index] = true;
     }
+    apply_decoded();
     if (newest_record_ms != INT64_MIN) bucket_clock.OnRecords(newest_record_ms, clock->WallMillis());
     counters_.records.fetch_add(records.size(), std::memory_order_relaxed);
     if (!records.empty()) counters_.position.store(records.back().next_offset, std::memory_order_relaxed);
@@ -333,7 +437,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     }
     const bool due = uncommitted >= options_.commit_records || now_ns - last_commit_ns >= options_.commit_ms * 1'000'000;
     if (due && !im.writer->busy()) {
-      submit();
+      submit(false);
       set_paused(false);
     } else if (uncommitted >= options_.max_uncommitted_records) {
       set_paused(true);

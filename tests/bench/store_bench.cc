@@ -181,7 +181,7 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
     for (int64_t j = 0; j < dirty; ++j) {
       const int64_t i = (c * dirty + j) % series;
       batch.states.push_back({Name(i), c + 1, (c + 1) * 60'000, Blob(rng)});
-      batch.history.push_back({Name(i), c + 1, static_cast<double>(j)});
+      batch.history.Add(Name(i), c + 1, static_cast<double>(j));
     }
     batch.positions.push_back({"kafka:calls", 0, (c + 1) * dirty});
     auto start = std::chrono::steady_clock::now();
@@ -236,7 +236,7 @@ LevelFigures RunLevel(Synchronous sync, int64_t series, int64_t dirty, int commi
   for (int c = 0; c < commits; ++c) {
     batch.Clear();
     for (int64_t j = 0; j < history_points; ++j) {
-      batch.history.push_back({Name(j % series), 1000 + c * (history_points / series + 1) + j / series, 1.0});
+      batch.history.Add(Name(j % series), 1000 + c * (history_points / series + 1) + j / series, 1.0);
     }
     auto start = std::chrono::steady_clock::now();
     Check(store->Commit(batch));

@@ -69,7 +69,7 @@ TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store
   CHECK(store->StoredPosition("file:/x.csv", 0) == std::optional<int64_t>(1234));
   // The history added by version 2 works on the migrated file.
   CommitBatch batch;
-  batch.history.push_back({"queue-a", 43, 1.5});
+  batch.history.Add("queue-a", 43, 1.5);
   REQUIRE(store->Commit(batch).ok());
   Result<HistorySlice> tail = store->HistoryTail("queue-a", 10);
   REQUIRE(tail.ok());

@@ -40,7 +40,7 @@ CommitBatch Workload(int64_t k) {
   for (int i = 0; i < kSeries; ++i) {
     if (!Touches(i, k)) continue;
     b.states.push_back({SeriesName(i), k, k * 60'000, StateBytes(i, k, 512)});
-    b.history.push_back({SeriesName(i), k, PointValue(i, k)});
+    b.history.Add(SeriesName(i), k, PointValue(i, k));
     if (Flags(i, k)) b.flags.push_back({SeriesName(i), k, k * 60'000, 9, 1, 0, 2, 0.99, 8, "ETS(A,N,N)"});
   }
   if (k % 10 == 9) b.alerts.push_back({SeriesName(0), k, k * 60'000, AlertKind::kRaised, "{}"});

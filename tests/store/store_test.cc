@@ -31,7 +31,7 @@ CommitBatch FullBatch(int n, int64_t step, bool create, int64_t next_offset) {
     m.aicc = 1050.5, m.fitted_ms = 7000, m.reason = "warmup";
     b.models.push_back(m);
     b.states.push_back({name, step, step * 900'000, StateBytes(i, step)});
-    b.history.push_back({name, step, 100.0 + i + 0.25 * static_cast<double>(step)});
+    b.history.Add(name, step, 100.0 + i + 0.25 * static_cast<double>(step));
     b.flags.push_back({name, step, step * 900'000, 250.0, 100.0, 80.0, 120.0, 0.99, 4.5, "ETS(M,Ad,M)"});
     b.alerts.push_back({name, step, step * 900'000, AlertKind::kRaised, R"({"run":3})"});
   }
@@ -345,8 +345,8 @@ TEST_CASE("history tail returns the last points across log and chunks, gaps as N
   for (int64_t first = 0; first < 100; first += 7) {
     CommitBatch b;
     for (int64_t step = first; step < std::min<int64_t>(first + 7, 100); ++step) {
-      if (step != 50) b.history.push_back({"a", step, static_cast<double>(step) * 1.5});
-      if (step < 10) b.history.push_back({"b", step, -static_cast<double>(step)});
+      if (step != 50) b.history.Add("a", step, static_cast<double>(step) * 1.5);
+      if (step < 10) b.history.Add("b", step, -static_cast<double>(step));
     }
     REQUIRE(store->Commit(b).ok());
   }
@@ -384,7 +384,7 @@ TEST_CASE("history tail returns the last points across log and chunks, gaps as N
   CHECK(b->values == std::vector<double>{-6, -7, -8, -9});
   // More points after compaction land in the open chunk and read back with the old ones.
   CommitBatch more;
-  more.history.push_back({"b", 10, -10});
+  more.history.Add("b", 10, -10);
   REQUIRE(store->Commit(more).ok());
   REQUIRE(store->CompactHistory().ok());
   b = store->HistoryTail("b", 100);
@@ -407,7 +407,7 @@ TEST_CASE("history tail can end at an earlier step than the newest stored one", 
   REQUIRE(store->Commit(create).ok());
   for (int64_t first = 0; first < 100; first += 10) {
     CommitBatch b;
-    for (int64_t step = first; step < first + 10; ++step) b.history.push_back({"a", step, 2.0 * step});
+    for (int64_t step = first; step < first + 10; ++step) b.history.Add("a", step, 2.0 * step);
     REQUIRE(store->Commit(b).ok());
   }
   auto check = [&](size_t n, int64_t through, int64_t want_first, int64_t want_last) {
@@ -440,14 +440,14 @@ TEST_CASE("history keeps points across long gaps and late corrections after comp
   auto store = OpenOrDie(options);
   CommitBatch b;
   b.series = {{"g", "p", 0}};
-  for (int64_t step = 0; step < 20; ++step) b.history.push_back({"g", step, static_cast<double>(step)});
-  b.history.push_back({"g", 1000, 1000.0});  // a gap far longer than one chunk
+  for (int64_t step = 0; step < 20; ++step) b.history.Add("g", step, static_cast<double>(step));
+  b.history.Add("g", 1000, 1000.0);  // a gap far longer than one chunk
   REQUIRE(store->Commit(b).ok());
   REQUIRE(store->CompactHistory().ok());
   CommitBatch late;
-  late.history.push_back({"g", 5, -5.0});    // rewrites a point inside an older chunk
-  late.history.push_back({"g", 500, 500.0}); // falls between chunks: a chunk of its own
-  late.history.push_back({"g", 1001, 1001.0});
+  late.history.Add("g", 5, -5.0);    // rewrites a point inside an older chunk
+  late.history.Add("g", 500, 500.0); // falls between chunks: a chunk of its own
+  late.history.Add("g", 1001, 1001.0);
   REQUIRE(store->Commit(late).ok());
   REQUIRE(store->CompactHistory().ok());
   Result<HistorySlice> tail = store->HistoryTail("g", 2000);
@@ -479,7 +479,7 @@ TEST_CASE("commit compacts the history log once it passes the threshold", "[stor
   REQUIRE(store->Commit(create).ok());
   for (int64_t k = 0; k < 3; ++k) {
     CommitBatch b;
-    for (int64_t i = 0; i < 400; ++i) b.history.push_back({"a", k * 400 + i, static_cast<double>(k * 400 + i)});
+    for (int64_t i = 0; i < 400; ++i) b.history.Add("a", k * 400 + i, static_cast<double>(k * 400 + i));
     REQUIRE(store->Commit(b).ok());
   }
   CHECK(store->counters().compactions == 1);

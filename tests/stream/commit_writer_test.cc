@@ -82,7 +82,7 @@ TEST_CASE("stopping with a batch unwritten leaves its positions unstored", "[str
   REQUIRE(store->TEST_LimitPages(1).ok());  // the file may not grow: commits fail as on a full disk
   CommitWriter writer(std::move(store), SystemClock());
   store::CommitBatch big = Batch(0);
-  for (int64_t step = 0; step < 100'000; ++step) big.history.push_back({"s", step, 1.0});  // needs new pages
+  for (int64_t step = 0; step < 100'000; ++step) big.history.Add("s", step, 1.0);  // needs new pages
   writer.Submit(std::move(big));
   Status waited = writer.WaitDurable(300);
   CHECK(waited.code() == StatusCode::kUnavailable);

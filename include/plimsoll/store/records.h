@@ -11,6 +11,7 @@
 #include <limits>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <vector>
 
 namespace plimsoll::store {
@@ -48,11 +49,27 @@ struct StateRecord {
   std::string encoded;  // opaque bytes from the model module, returned bit-identical
 };
 
-// One accepted observation, appended to the series' history (what refits read).
-struct HistoryPoint {
-  std::string series;
-  int64_t step = 0;
-  double value = 0;
+// The accepted observations of one commit, appended to the series' history (what refits read).
+// Each series is named once and its points refer to it by index, so a commit of N points for
+// K series costs K name lookups in the store, not N.
+struct HistoryBatch {
+  struct Point {
+    uint32_t series = 0;  // index into `series`
+    int64_t step = 0;
+    double value = 0;     // NaN: gap step
+  };
+  std::vector<std::string> series;
+  std::vector<Point> points;
+
+  // Appends one point; a name equal to the previous point's is not stored again (other repeats
+  // only cost a lookup).
+  void Add(std::string_view name, int64_t step, double value) {
+    if (series.empty() || series.back() != name) series.emplace_back(name);
+    points.push_back({static_cast<uint32_t>(series.size() - 1), step, value});
+  }
+  size_t size() const { return points.size(); }
+  bool empty() const { return points.empty(); }
+  void clear() { series.clear(), points.clear(); }
 };
 
 // An observation outside its one-step interval. Its id is (series, step): re-committing the
@@ -122,7 +139,7 @@ struct CommitBatch {
   std::vector<SeriesRecord> series;  // new series (existing names are left unchanged)
   std::vector<ModelRecord> models;   // upserted per series
   std::vector<StateRecord> states;   // upserted per series
-  std::vector<HistoryPoint> history;
+  HistoryBatch history;
   std::vector<FlagRecord> flags;     // duplicates of (series, step) ignored
   std::vector<AlertRecord> alerts;   // duplicates of (series, step, kind) ignored
   std::vector<DeadLetterRecord> dead_letters;

@@ -36,6 +36,15 @@ struct DaemonOptions {
   int64_t commit_ms = 100;             // group commit at least this often (ms): latency vs. commit cost
   size_t commit_records = 50'000;      // ... or after this many records, whichever is first
   size_t max_uncommitted_records = 1'000'000;  // beyond this, input pauses until the writer catches up
+  // A checkpoint (every changed series' state together with the source positions) is written at
+  // least this often (ms). Group commits in between carry history, flags, alerts, models and new
+  // series, which a restart from the checkpoint re-derives identically (all idempotent); events
+  // and dead letters wait for the checkpoint. Longer: fewer state writes, more input re-read
+  // after a crash, positions (and Kafka's advisory commits) acknowledged later.
+  int64_t checkpoint_ms = 1000;
+  // ... and whenever this many records per changed series arrived since the last checkpoint
+  // (checkpointing few busy series is cheap and keeps positions fresh). 0: only by time.
+  size_t checkpoint_records_per_state = 16;
   size_t poll_records = 4096;          // records per Poll call
   int poll_timeout_ms = 20;            // how long an idle Poll waits
   // Aggregated buckets close when the bucket clock passes their end + allowed lateness. The
