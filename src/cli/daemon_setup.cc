@@ -49,6 +49,7 @@ Result<std::unique_ptr<stream::Daemon>> OpenDaemon(const stream::Config& config,
   // when the refit as a whole ran over it.
   fit::FitOptions refit_fit;
   refit_fit.max_seconds_per_form = static_cast<double>(refit_options.time_budget_ms) / 1000.0;
+  refit_fit.max_evaluations = config.refit.max_evals;
   std::unique_ptr<stream::RefitService> refits;
   try {
     refits = refit::MakeRefitService(refit_options, stream::MakeFitChooser(refit_fit, clock),
@@ -56,7 +57,9 @@ Result<std::unique_ptr<stream::Daemon>> OpenDaemon(const stream::Config& config,
   } catch (const std::invalid_argument& e) {
     return Status::InvalidArgument(std::string("[refit]: ") + e.what());
   }
-  return stream::Daemon::Open(stream::DaemonOptionsFromConfig(config), stream::EngineOptionsFromConfig(config),
+  stream::EngineOptions engine_options = stream::EngineOptionsFromConfig(config);
+  engine_options.background_warmup = config.refit.background_warmup;
+  return stream::Daemon::Open(stream::DaemonOptionsFromConfig(config), std::move(engine_options),
                               stream::MakeFitChooser(fit::FitOptions{}, clock), std::move(store).value(), clock,
                               std::move(refits));
 }

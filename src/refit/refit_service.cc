@@ -1,6 +1,11 @@
 #include <spdlog/spdlog.h>
 
 #include <algorithm>
+#if defined(__SANITIZE_THREAD__)
+// Asio's handler recycling issues std::atomic_thread_fence, which GCC flags under TSan (-Wtsan).
+// The pool's hand-over itself goes through a mutex and a condition variable, which TSan models.
+#pragma GCC diagnostic ignored "-Wtsan"
+#endif
 #include <boost/asio/post.hpp>
 #include <boost/asio/thread_pool.hpp>
 #include <chrono>
@@ -43,6 +48,7 @@ struct Job {
   bool additive_only = false;
   Trigger trigger = Trigger::kCount;
   int64_t snapshot_step = 0;       // the fitted history ends here
+  int64_t read_step = 0;           // the series' last step at dispatch (>= snapshot_step)
   bool warmup = false;
   uint32_t epoch = 0;              // warm-up round
   std::string old_form;            // empty: none
@@ -50,6 +56,7 @@ struct Job {
   // inputs (warm-up) / outputs (refits): the history fitted, oldest first
   std::vector<double> history;
   // outputs
+  std::vector<double> tail;        // steps snapshot_step + 1 ... read_step, replayed at install
   std::optional<Result<ModelChoice>> choice;
   int64_t micros = 0;
 };
@@ -70,7 +77,7 @@ const char* StaleText(Stale s) {
 // snapshot, and whether the result is still wanted.
 struct InFlight {
   std::shared_ptr<Job> job;
-  std::vector<double> since;  // steps snapshot_step + 1 ... in order (NaN gaps)
+  std::vector<double> since;  // steps read_step + 1 ... in order (NaN gaps)
   Stale stale = Stale::kNone;  // why the result will be discarded
 };
 
@@ -132,7 +139,7 @@ class Service final : public stream::RefitService {
     Capture(engine, taken);
     for (const stream::AlertRecord& a : taken.alerts)
       if (a.kind == stream::AlertKind::kRaised && triggers_.OnAlert(ProfileOf(engine, a.series)))
-        Queue({a.series, Trigger::kAlert, triggers_.ModelTime(a.series)});
+        Queue({a.series, Trigger::kAlert, triggers_.ModelTime(a.series), a.step});
     for (SeriesId id : engine.TakeRefitRequests()) Queue({id, Trigger::kNonPositive, triggers_.ModelTime(id)});
     for (stream::WarmupRequest& w : engine.TakeWarmupRequests()) {
       const SeriesId id = w.series;
@@ -224,12 +231,12 @@ class Service final : public stream::RefitService {
         value = it == model_step.end() || h.step > it->second;
       }
       if (value && triggers_.Observed(h.series, ProfileOf(engine, h.series), 1))
-        Queue({h.series, Trigger::kCount, triggers_.ModelTime(h.series)});
+        Queue({h.series, Trigger::kCount, triggers_.ModelTime(h.series), h.step});
       if (running_.empty()) continue;
       InFlight* f = Running(h.series);
-      if (f == nullptr || f->stale != Stale::kNone || f->job->warmup || h.step <= f->job->snapshot_step) continue;
+      if (f == nullptr || f->stale != Stale::kNone || f->job->warmup || h.step <= f->job->read_step) continue;
       f->since.push_back(h.value);
-      if (static_cast<int64_t>(f->since.size()) > options_.max_lag_steps) {
+      if (h.step - f->job->snapshot_step > options_.max_lag_steps) {
         f->stale = Stale::kMovedOn;
         f->since = std::vector<double>();
       }
@@ -272,7 +279,11 @@ class Service final : public stream::RefitService {
       job->rules = engine.options().profiles[profile];
       job->additive_only = view.additive_only;
       job->trigger = task->trigger;
-      job->snapshot_step = view.last_step;
+      job->read_step = view.last_step;
+      // A trigger step the engine has since re-seeded past (or never reached) falls back to now.
+      job->snapshot_step = task->snapshot_step != kSnapshotAtDispatch && task->snapshot_step <= view.last_step
+                               ? task->snapshot_step
+                               : view.last_step;
       if (task->trigger == Trigger::kWarmup) {
         auto it = warmups_.find(task->series);
         if (it == warmups_.end()) continue;
@@ -307,12 +318,14 @@ class Service final : public stream::RefitService {
     done_.push_back(job.series);
   }
 
-  // Worker thread: the last `history` steps through the snapshot step, once the writer has made
-  // them durable (it commits every commit_ms; the wait is bounded by the time budget).
+  // Worker thread: the last `history` steps through the snapshot step and the steps after it
+  // through read_step, once the writer has made them durable (it commits every commit_ms; the
+  // wait is bounded by the time budget).
   Status ReadSnapshot(Job& job) {
     std::unique_ptr<HistoryReader> reader = CheckOutReader();
     if (!reader) return Status::Unavailable("no history reader");
-    const size_t n = static_cast<size_t>(std::max(job.rules.history, 2));
+    const size_t n = static_cast<size_t>(std::max(job.rules.history, 2)) +
+                     static_cast<size_t>(job.read_step - job.snapshot_step);
     const int64_t attempts = std::max<int64_t>(1, options_.time_budget_ms / kDurableWaitMs);
     Status status;
     size_t extra = 64;
@@ -323,22 +336,26 @@ class Service final : public stream::RefitService {
         break;
       }
       const int64_t end = slice->first_step + static_cast<int64_t>(slice->values.size()) - 1;
-      if (end < job.snapshot_step) {
+      if (end < job.read_step) {
         status = Status::Unavailable("history of '" + job.name + "' not yet durable through step " +
-                                     std::to_string(job.snapshot_step));
+                                     std::to_string(job.read_step));
         std::this_thread::sleep_for(std::chrono::milliseconds(kDurableWaitMs));
         continue;
       }
-      const size_t beyond = static_cast<size_t>(end - job.snapshot_step);
+      const size_t beyond = static_cast<size_t>(end - job.read_step);
       if (beyond > extra && slice->values.size() == n + extra) {
         extra = beyond + 64;  // more was stored after the snapshot than asked for: read again
         --attempt;
         continue;
       }
-      const size_t through = slice->values.size() - std::min(beyond, slice->values.size());
-      const size_t from = through > n ? through - n : 0;
-      job.history.assign(slice->values.begin() + static_cast<std::ptrdiff_t>(from),
-                         slice->values.begin() + static_cast<std::ptrdiff_t>(through));
+      const auto& v = slice->values;
+      const size_t read_end = v.size() - std::min(beyond, v.size());
+      const size_t tail = std::min(static_cast<size_t>(job.read_step - job.snapshot_step), read_end);
+      const size_t fit_end = read_end - tail;
+      const size_t fit_points = static_cast<size_t>(std::max(job.rules.history, 2));
+      const size_t from = fit_end > fit_points ? fit_end - fit_points : 0;
+      job.history.assign(v.begin() + static_cast<std::ptrdiff_t>(from), v.begin() + static_cast<std::ptrdiff_t>(fit_end));
+      job.tail.assign(v.begin() + static_cast<std::ptrdiff_t>(fit_end), v.begin() + static_cast<std::ptrdiff_t>(read_end));
       status = Status::Ok();
       break;
     }
@@ -404,7 +421,9 @@ class Service final : public stream::RefitService {
     const stream::SeriesView view = engine.View(job.series);
     const int64_t caught_up = view.last_step - job.snapshot_step;
     Stale stale = f.stale;
-    if (stale == Stale::kNone && (view.warming_up || caught_up != static_cast<int64_t>(f.since.size())))
+    if (stale == Stale::kNone && view.last_step - job.snapshot_step > options_.max_lag_steps) stale = Stale::kMovedOn;
+    if (stale == Stale::kNone &&
+        (view.warming_up || caught_up != static_cast<int64_t>(job.tail.size() + f.since.size())))
       stale = Stale::kReseeded;
     if (stale != Stale::kNone) {
       if (stale == Stale::kMovedOn) ++counters_.discarded_lag;
@@ -427,8 +446,9 @@ class Service final : public stream::RefitService {
     }
     std::vector<double> history;
     if (status.ok()) {
-      history.reserve(job.history.size() + f.since.size());
+      history.reserve(job.history.size() + job.tail.size() + f.since.size());
       history.insert(history.end(), job.history.begin(), job.history.end());
+      history.insert(history.end(), job.tail.begin(), job.tail.end());
       history.insert(history.end(), f.since.begin(), f.since.end());
       status = engine.InstallModel(job.series, *choice, history, std::string("refit: ") + std::string(TriggerName(job.trigger)),
                                    job.history.size());
@@ -517,8 +537,9 @@ RefitServiceOptions RefitServiceOptionsFromConfig(const stream::Config& config) 
   out.threads = config.refit.threads > 0 ? config.refit.threads : DefaultThreads();
   out.queue_capacity = static_cast<size_t>(config.refit.queue);
   out.time_budget_ms = config.refit.time_budget_ms;
+  out.max_lag_steps = config.refit.max_lag;
   for (const stream::ProfileOptions& p : config.profiles)
-    out.profiles.push_back(TriggerRules{p.refit_every, p.refit_max_age_ms, config.refit.on_alert});
+    out.profiles.push_back(TriggerRules{p.refit_every, p.refit_max_age_ms, p.refit_on_alert});
   out.requests_path = config.store.path;
   return out;
 }

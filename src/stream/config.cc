@@ -346,11 +346,12 @@ Status ReadForms(const TableReader& r, int period, std::vector<model::ModelSpec>
 Status ReadProfile(const TableReader& r, const Config& c, ProfileOptions& p) {
   PLIMSOLL_RETURN_IF_ERROR(r.CheckKeys({"match", "interval", "period", "forms", "band", "history", "aggregate",
                                         "warmup", "max_gap", "allowed_lateness", "policy", "refit_every",
-                                        "refit_max_age"}));
+                                        "refit_max_age", "refit_on_alert"}));
   p.band = c.band.level;
   p.policy = c.band.policy;
   p.refit_every = c.refit.every;
   p.refit_max_age_ms = c.refit.max_age_ms;
+  p.refit_on_alert = c.refit.on_alert;
   PLIMSOLL_RETURN_IF_ERROR(r.String("match", p.match));
   if (p.match.empty()) return r.Error("match", "must not be empty (use \"*\" to match every series)");
   if (Status s = ValidateGlob(p.match); !s.ok()) return r.Error("match", "'" + p.match + "': " + s.message());
@@ -385,6 +386,7 @@ Status ReadProfile(const TableReader& r, const Config& c, ProfileOptions& p) {
   PLIMSOLL_RETURN_IF_ERROR(r.Enum("policy", p.policy, kPolicies));
   PLIMSOLL_RETURN_IF_ERROR(r.Int("refit_every", p.refit_every, 0, kMaxCount));
   PLIMSOLL_RETURN_IF_ERROR(r.Duration("refit_max_age", p.refit_max_age_ms, /*allow_none=*/true));
+  PLIMSOLL_RETURN_IF_ERROR(r.Bool("refit_on_alert", p.refit_on_alert));
   return Status::Ok();
 }
 
@@ -468,7 +470,8 @@ Result<Config> Build(const toml::table& root, std::string_view origin) {
   PLIMSOLL_RETURN_IF_ERROR(section("refit", t));
   {
     TableReader r(t, "refit", origin);
-    PLIMSOLL_RETURN_IF_ERROR(r.CheckKeys({"threads", "every", "max_age", "on_alert", "queue", "time_budget"}));
+    PLIMSOLL_RETURN_IF_ERROR(r.CheckKeys({"threads", "every", "max_age", "on_alert", "queue", "time_budget",
+                                          "max_evals", "max_lag", "background_warmup"}));
     PLIMSOLL_RETURN_IF_ERROR(r.Int("threads", c.refit.threads, 0, 256));
     PLIMSOLL_RETURN_IF_ERROR(r.Int("every", c.refit.every, 0, kMaxCount));
     PLIMSOLL_RETURN_IF_ERROR(r.Duration("max_age", c.refit.max_age_ms, /*allow_none=*/true));
@@ -476,6 +479,9 @@ Result<Config> Build(const toml::table& root, std::string_view origin) {
     PLIMSOLL_RETURN_IF_ERROR(r.Int("queue", c.refit.queue, 1, 10'000'000));
     PLIMSOLL_RETURN_IF_ERROR(r.Duration("time_budget", c.refit.time_budget_ms));
     if (c.refit.time_budget_ms <= 0) return r.Error("time_budget", "must be positive");
+    PLIMSOLL_RETURN_IF_ERROR(r.Int("max_evals", c.refit.max_evals, 10, 10'000'000));
+    PLIMSOLL_RETURN_IF_ERROR(r.Int("max_lag", c.refit.max_lag, 1, kMaxCount));
+    PLIMSOLL_RETURN_IF_ERROR(r.Bool("background_warmup", c.refit.background_warmup));
   }
 
   if (const toml::node* profiles = root.get("profile")) {

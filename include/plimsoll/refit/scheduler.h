@@ -85,10 +85,16 @@ enum class OverflowPolicy : uint8_t {
 };
 std::string_view OverflowPolicyName(OverflowPolicy policy);  // "drop-least-urgent"
 
+inline constexpr int64_t kSnapshotAtDispatch = INT64_MIN;
+
 struct RefitTask {
   SeriesId series;
   Trigger trigger;
   int64_t model_ms;  // age key: when the series' model was chosen (INT64_MIN: none)
+  // The fit sees the series' history through this step: the step that fired the trigger (alert,
+  // count), so the state after the catch-up does not depend on when the fit ran; or
+  // kSnapshotAtDispatch for the series' last step when a worker takes it (age, request, ...).
+  int64_t snapshot_step = kSnapshotAtDispatch;
 };
 
 struct QueueCounters {

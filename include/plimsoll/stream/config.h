@@ -108,6 +108,7 @@ struct ProfileOptions {
   FlagPolicy policy = FlagPolicy::kClip;  // defaults to [band].policy
   int64_t refit_every = 0;             // defaults to [refit].every
   std::optional<int64_t> refit_max_age_ms;  // defaults to [refit].max_age
+  bool refit_on_alert = true;          // defaults to [refit].on_alert
   int line = 0;                        // line of the [[profile]] header (0 for the implicit one)
 };
 
@@ -117,8 +118,11 @@ struct RefitOptions {
   int64_t every = 0;         // refit after this many new observations per series; 0 = never by count
   std::optional<int64_t> max_age_ms = int64_t{7} * 86'400'000;  // refit models older than this; nullopt: never
   bool on_alert = true;      // a raised alert triggers a refit of its series
-  int queue = 10'000;        // pending refits; beyond this the oldest-model requests are dropped and counted
+  int queue = 10'000;        // pending refits; beyond this the least urgent (newest model) is dropped and counted
   int64_t time_budget_ms = 10'000;  // per refit; a refit over budget keeps the current model
+  int max_evals = 10'000;    // likelihood evaluations per candidate form in a refit (fit's max_evaluations)
+  int64_t max_lag = 10'000;  // steps a series may take while its refit runs; beyond, the result is discarded
+  bool background_warmup = true;  // first fits on the refit threads (false: inline, stalls the input)
 };
 
 // [http]
