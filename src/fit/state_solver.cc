@@ -142,7 +142,7 @@ namespace {
 // Two doubles in one SSE2 register (GCC/Clang vector extension): the tangent columns are
 // processed in pairs, which the compiler does not do by itself at -O2 for loops of unknown
 // length over several arrays.
-typedef double Pair __attribute__((vector_size(16)));
+typedef double Pair __attribute__((vector_size(16), may_alias));
 
 // The tangent-linear pass for one shape, all columns of a step fused in one loop. Columns are
 // padded to an even count (the pad columns start at zero and stay zero).
@@ -229,7 +229,7 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
 // Four doubles (AVX): the same pass in 4-wide registers where the CPU has AVX2. No fused
 // multiply-adds are enabled, so both widths give bit-identical tangents. The buffers are
 // 32-byte aligned (AlignedVector, rows of a multiple of 4 doubles).
-typedef double Quad __attribute__((vector_size(32)));
+typedef double Quad __attribute__((vector_size(32), may_alias));
 
 template <bool kTrend, model::SeasonType kSeason, bool kMultError>
 __attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, const model::Params& params, double phi,
