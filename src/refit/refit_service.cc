@@ -158,7 +158,17 @@ class Service final : public stream::RefitService {
     Dispatch(engine);
   }
 
-  void Stop() override {
+  void Stop(Engine& engine, bool finish_warmups) override {
+    if (stopping_) return;
+    if (finish_warmups) {
+      for (stream::WarmupRequest& w : engine.TakeWarmupRequests()) {
+        const SeriesId id = w.series;
+        warmups_[id] = std::move(w);
+      }
+      std::vector<SeriesId> waiting;
+      for (const auto& [id, request] : warmups_) waiting.push_back(id);
+      for (SeriesId id : waiting) StartJob(engine, RefitTask{id, Trigger::kWarmup, INT64_MIN});
+    }
     stopping_ = true;
     const size_t dropped = queue_.Clear();
     warmups_.clear();
@@ -266,45 +276,47 @@ class Service final : public stream::RefitService {
     while (!stopping_ && running_.size() < static_cast<size_t>(options_.threads)) {
       std::optional<RefitTask> task = queue_.Pop();
       if (!task) break;
-      if (Running(task->series) != nullptr) {
-        deferred.push_back(*task);
-        continue;
-      }
-      auto job = std::make_shared<Job>();
-      const stream::SeriesView view = engine.View(task->series);
-      job->series = task->series;
-      job->name = view.name;
-      const uint32_t profile = ProfileOf(engine, task->series);
-      if (profile == kNoProfile) continue;
-      job->rules = engine.options().profiles[profile];
-      job->additive_only = view.additive_only;
-      job->trigger = task->trigger;
-      job->read_step = view.last_step;
-      // A trigger step the engine has since re-seeded past (or never reached) falls back to now.
-      job->snapshot_step = task->snapshot_step != kSnapshotAtDispatch && task->snapshot_step <= view.last_step
-                               ? task->snapshot_step
-                               : view.last_step;
-      if (task->trigger == Trigger::kWarmup) {
-        auto it = warmups_.find(task->series);
-        if (it == warmups_.end()) continue;
-        job->warmup = true;
-        job->epoch = it->second.epoch;
-        job->additive_only = it->second.additive_only;
-        job->history = std::move(it->second.values);
-        warmups_.erase(it);
-      } else if (view.warming_up) {
-        continue;  // re-seeded since it was queued: its warm-up fit comes by itself
-      } else {
-        job->old_form = view.form->Notation();
-        job->old_aicc = Aicc(task->series);
-      }
-      if (task->series >= slot_of_.size()) slot_of_.resize(static_cast<size_t>(task->series) + 1, -1);
-      slot_of_[task->series] = static_cast<int32_t>(running_.size());
-      running_.push_back(InFlight{job, {}, Stale::kNone});
-      ++counters_.started;
-      boost::asio::post(pool_, [this, job] { Run(*job); });
+      if (Running(task->series) != nullptr) deferred.push_back(*task);
+      else StartJob(engine, *task);
     }
     for (const RefitTask& t : deferred) queue_.Push(t);
+  }
+
+  // Hands `task` to the pool unless it no longer applies. REQUIRES: no job running for the series.
+  void StartJob(Engine& engine, const RefitTask& task) {
+    auto job = std::make_shared<Job>();
+    const stream::SeriesView view = engine.View(task.series);
+    job->series = task.series;
+    job->name = view.name;
+    const uint32_t profile = ProfileOf(engine, task.series);
+    if (profile == kNoProfile) return;
+    job->rules = engine.options().profiles[profile];
+    job->additive_only = view.additive_only;
+    job->trigger = task.trigger;
+    job->read_step = view.last_step;
+    // A trigger step the engine has since re-seeded past (or never reached) falls back to now.
+    job->snapshot_step = task.snapshot_step != kSnapshotAtDispatch && task.snapshot_step <= view.last_step
+                             ? task.snapshot_step
+                             : view.last_step;
+    if (task.trigger == Trigger::kWarmup) {
+      auto it = warmups_.find(task.series);
+      if (it == warmups_.end()) return;
+      job->warmup = true;
+      job->epoch = it->second.epoch;
+      job->additive_only = it->second.additive_only;
+      job->history = std::move(it->second.values);
+      warmups_.erase(it);
+    } else if (view.warming_up) {
+      return;  // re-seeded since it was queued: its warm-up fit comes by itself
+    } else {
+      job->old_form = view.form->Notation();
+      job->old_aicc = Aicc(task.series);
+    }
+    if (task.series >= slot_of_.size()) slot_of_.resize(static_cast<size_t>(task.series) + 1, -1);
+    slot_of_[task.series] = static_cast<int32_t>(running_.size());
+    running_.push_back(InFlight{job, {}, Stale::kNone});
+    ++counters_.started;
+    boost::asio::post(pool_, [this, job] { Run(*job); });
   }
 
   // Worker thread: reads the snapshot (refits) and fits it.

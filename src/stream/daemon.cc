@@ -459,7 +459,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   if (im.refits) {
     // Running fits finish (each within its budget); the first drain installs them, the second
     // commits what the installs changed.
-    im.refits->Stop();
+    im.refits->Stop(*engine_, /*finish_warmups=*/end_of_input);
     Status installed = drain(options_.shutdown_timeout_ms);
     if (!installed.ok()) spdlog::error("commit before the last refit installs failed: {}", installed.ToString());
   }

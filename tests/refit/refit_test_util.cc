@@ -86,7 +86,7 @@ Harness::Harness(std::vector<stream::SeriesRules> profiles, RefitServiceOptions 
 }
 
 Harness::~Harness() {
-  service->Stop();
+  service->Stop(*engine, false);
   service.reset();
 }
 

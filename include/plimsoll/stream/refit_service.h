@@ -40,8 +40,10 @@ class RefitService {
                        std::vector<store::EventRecord>& events) = 0;
 
   // End of Run: drops queued refits, waits for the running ones (each bounded by its time
-  // budget); the next OnBatch installs what finished.
-  virtual void Stop() = 0;
+  // budget); the next OnBatch installs what finished. With `finish_warmups` (the input ended)
+  // queued first fits run too, so a replayed file ends with models; without (a signal) they are
+  // dropped and a restart asks for them again. The service takes no new work afterwards.
+  virtual void Stop(Engine& engine, bool finish_warmups) = 0;
 
   // One line of counters for the end-of-run summary.
   virtual std::string Summary() const = 0;
