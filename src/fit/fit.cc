@@ -597,7 +597,8 @@ StopReason Search(P& problem, std::vector<std::vector<double>>& start_points, in
 }
 
 // The concentrated search: every start runs to convergence with L-BFGS on the exact gradient
-// (10-20 evaluations each in 1-4 dimensions) and the best point is kept. The surfaces are often
+// (10-30 evaluations each in 1-4 dimensions; a run that reaches an earlier run's optimum stops
+// there, see Profile::NearKnownOptimum) and the best point is kept. The surfaces are often
 // multimodal in (alpha, beta, gamma, phi), and a gradient method stops in whichever basin its
 // line searches lead to; so a short BOBYQA probe with a wide trust region follows from the best
 // point (its first 2 dim + 1 evaluations sample a neighbourhood 0.25 wide in every coordinate),
@@ -623,8 +624,8 @@ StopReason GradientSearch(Profile& profile, std::vector<std::vector<double>>& st
     const int left = budget_end - profile.evaluations();
     if (left <= 0) return StopReason::kEvaluationBudget;
     const double before = profile.best_f();
-    const StopReason probe = RunOnce(profile, nlopt::LN_BOBYQA, profile.best_z(), std::min(left, probe_evaluations), tolerance,
-                                     kRestartStepScale[1]);
+    const StopReason probe = RunOnce(profile, nlopt::LN_BOBYQA, profile.best_z(), std::min(left, probe_evaluations),
+                                     tolerance, kRestartStepScale[1]);
     if (probe == StopReason::kTimeBudget) return probe;
     if (!(profile.best_f() < before - 1e-9 * std::fabs(before))) break;
     const int rest = budget_end - profile.evaluations();
