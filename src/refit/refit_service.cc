@@ -158,17 +158,15 @@ class Service final : public stream::RefitService {
     Dispatch(engine);
   }
 
-  void Stop(Engine& engine, bool finish_warmups) override {
+  void Stop(Engine& engine) override {
     if (stopping_) return;
-    if (finish_warmups) {
-      for (stream::WarmupRequest& w : engine.TakeWarmupRequests()) {
-        const SeriesId id = w.series;
-        warmups_[id] = std::move(w);
-      }
-      std::vector<SeriesId> waiting;
-      for (const auto& [id, request] : warmups_) waiting.push_back(id);
-      for (SeriesId id : waiting) StartJob(engine, RefitTask{id, Trigger::kWarmup, INT64_MIN});
+    for (stream::WarmupRequest& w : engine.TakeWarmupRequests()) {
+      const SeriesId id = w.series;
+      warmups_[id] = std::move(w);
     }
+    std::vector<SeriesId> waiting;
+    for (const auto& [id, request] : warmups_) waiting.push_back(id);
+    for (SeriesId id : waiting) StartJob(engine, RefitTask{id, Trigger::kWarmup, INT64_MIN});
     stopping_ = true;
     const size_t dropped = queue_.Clear();
     warmups_.clear();

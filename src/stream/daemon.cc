@@ -459,7 +459,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   if (im.refits) {
     // Running fits finish (each within its budget); the first drain installs them, the second
     // commits what the installs changed.
-    im.refits->Stop(*engine_, /*finish_warmups=*/end_of_input);
+    im.refits->Stop(*engine_);
     Status installed = drain(options_.shutdown_timeout_ms);
     if (!installed.ok()) spdlog::error("commit before the last refit installs failed: {}", installed.ToString());
   }
@@ -488,7 +488,7 @@ EngineOptions EngineOptionsFromConfig(const Config& config) {
   EngineOptions out;
   out.create_series = config.series.create;
   out.max_series = static_cast<size_t>(config.series.max_count);
-  out.background_warmup = true;  // applies only when the daemon has a refit service
+  out.background_warmup = config.refit.background_warmup;  // only with a refit service
   for (const ProfileOptions& p : config.profiles) {
     SeriesRules r;
     r.match = p.match;

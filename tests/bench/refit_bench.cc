@@ -110,7 +110,7 @@ struct Setup {
     for (uint32_t i = 0; i < series; ++i) names.push_back(Name(i));
   }
   ~Setup() {
-    if (service) service->Stop(*engine, false);
+    if (service) service->Stop(*engine);
   }
   // One worker; series already fitted count as modelled now.
   void StartService(refit::TriggerRules triggers) {

@@ -79,6 +79,7 @@ std::vector<std::string> Lines(const std::string& series, int64_t from, int64_t 
 std::string ConfigText(const std::string& db, const std::string& match) {
   return "[store]\npath = \"" + db +
          "\"\ncommit_ms = 5\n[band]\nbreach_run = 3\nclear_run = 5\n[refit]\nthreads = 1\nmax_age = \"none\"\n"
+         "background_warmup = true\n"
          "[[profile]]\nmatch = \"" + match + "\"\ninterval = \"1m\"\nperiod = 1\nwarmup = 40\nhistory = 1000\n";
 }
 

@@ -195,29 +195,15 @@ TEST_CASE("warm-up fits run on the pool and the series buffers until the model a
   CHECK(s.h->engine->View(0).last_step == 14);
 }
 
-TEST_CASE("when the input ends, queued warm-up fits still run; the next batch installs them", "[refit]") {
+TEST_CASE("at stop, queued warm-up fits still run; the next batch installs them", "[refit]") {
   Setup s(RefitServiceOptions{}, testing::Profile("*", 10, 200), /*background=*/true);
   for (int64_t k = 0; k < 12; ++k)
     for (const char* name : {"a", "b", "c"}) s.h->Feed(name, k, 100.0 + (k % 2));
   s.h->Pump();  // one worker: one warm-up starts, two wait in the queue
-  s.h->service->Stop(*s.h->engine, /*finish_warmups=*/true);
+  s.h->service->Stop(*s.h->engine);
   s.h->Pump();
   CHECK(s.h->Counters().warmups == 3);
   for (stream::SeriesId id = 0; id < 3; ++id) CHECK_FALSE(s.h->engine->View(id).warming_up);
-}
-
-TEST_CASE("a stop by signal drops queued warm-up fits; the engine asks again after a restart", "[refit]") {
-  Setup s(RefitServiceOptions{}, testing::Profile("*", 10, 200), /*background=*/true);
-  s.chooser.hold = true;
-  for (int64_t k = 0; k < 12; ++k)
-    for (const char* name : {"a", "b"}) s.h->Feed(name, k, 100.0 + (k % 2));
-  s.h->Pump();
-  REQUIRE(s.h->PumpUntil([&] { return s.chooser.calls.load() == 1; }));
-  s.chooser.hold = false;
-  s.h->service->Stop(*s.h->engine, /*finish_warmups=*/false);
-  s.h->Pump();
-  CHECK(s.h->Counters().warmups == 1);
-  CHECK(s.h->engine->View(1).warming_up);
 }
 
 }  // namespace plimsoll::refit

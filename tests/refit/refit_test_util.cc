@@ -86,7 +86,7 @@ Harness::Harness(std::vector<stream::SeriesRules> profiles, RefitServiceOptions 
 }
 
 Harness::~Harness() {
-  service->Stop(*engine, false);
+  service->Stop(*engine);
   service.reset();
 }
 

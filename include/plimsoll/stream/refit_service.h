@@ -39,11 +39,11 @@ class RefitService {
   virtual void OnBatch(Engine& engine, const EngineBatch& taken, int64_t now_ms,
                        std::vector<store::EventRecord>& events) = 0;
 
-  // End of Run: drops queued refits, waits for the running ones (each bounded by its time
-  // budget); the next OnBatch installs what finished. With `finish_warmups` (the input ended)
-  // queued first fits run too, so a replayed file ends with models; without (a signal) they are
-  // dropped and a restart asks for them again. The service takes no new work afterwards.
-  virtual void Stop(Engine& engine, bool finish_warmups) = 0;
+  // End of Run: drops queued refits, runs the queued first fits (warm-ups: a stopped daemon
+  // leaves no series without its model that an inline fit would have given one) and waits for
+  // everything running (each bounded by its time budget); the next OnBatch installs what
+  // finished. The service takes no new work afterwards.
+  virtual void Stop(Engine& engine) = 0;
 
   // One line of counters for the end-of-run summary.
   virtual std::string Summary() const = 0;
