@@ -32,6 +32,7 @@
 #include <array>
 #include <cmath>
 #include <limits>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -735,6 +736,39 @@ bool IsErrorTwin(const ModelSpec& spec, const ModelSpec& twin) {
          spec.season != model::SeasonType::kMultiplicative && StateSolver::Supports(spec);
 }
 
+bool IsSeasonTwin(const ModelSpec& spec, const ModelSpec& twin) {
+  return spec.season == model::SeasonType::kMultiplicative && twin.season == model::SeasonType::kAdditive &&
+         spec.error == twin.error && spec.trend == twin.trend && spec.period == twin.period &&
+         StateSolver::Supports(spec);
+}
+
+namespace {
+
+// The twin's optimum as a start for `spec`: unchanged for an error twin; for a season twin the
+// additive seasonal states become factors 1 + s / level (renormalised to mean 1), gamma kept
+// (s_t = s_{t-m} + gamma mu eps against s_t = s_{t-m} (1 + gamma eps) with mu ~ level s).
+// Empty when a factor would not be clearly positive, or when the seasonal states are not
+// estimated (they stay at this form's own heuristic values then, not the twin's).
+std::optional<FitResult> TwinStart(const ModelSpec& spec, const FitResult& twin, bool estimate_season) {
+  if (IsErrorTwin(spec, twin.spec)) return twin;
+  if (!IsSeasonTwin(spec, twin.spec) || !estimate_season || !(twin.initial_state.level > 0)) return std::nullopt;
+  std::vector<double> season = model::SeasonChronological(twin.initial_state);
+  double mean = 0.0;
+  for (double& s : season) {
+    s = 1.0 + s / twin.initial_state.level;
+    if (!(s > 0.05)) return std::nullopt;
+    mean += s;
+  }
+  mean /= static_cast<double>(season.size());
+  for (double& s : season) s /= mean;
+  FitResult out = twin;
+  out.spec = spec;
+  out.initial_state = model::MakeState(twin.initial_state.level, twin.initial_state.trend, season);
+  return out;
+}
+
+}  // namespace
+
 Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y, const DataSummary& data,
                                const FitOptions& options, const Clock& clock, const FitResult* twin) {
   const int64_t start_nanos = clock.MonotonicNanos();
@@ -754,8 +788,13 @@ Result<FitResult> FitValidated(const ModelSpec& spec, std::span<const double> y,
     // is solved for at each of their values.
     StateSolver solver(spec, y, problem.estimate_season());
     // The twin's initial state is a start for the state solve only where this form can use it.
-    const bool use_twin = twin != nullptr && IsErrorTwin(spec, twin->spec) && twin->initial_state.level > 0 &&
-                          (!spec.has_season() || twin->seasonal_states_estimated == problem.estimate_season());
+    std::optional<FitResult> twin_start;
+    if (twin != nullptr && twin->initial_state.level > 0 &&
+        (!spec.has_season() || twin->seasonal_states_estimated == problem.estimate_season())) {
+      twin_start = TwinStart(spec, *twin, problem.estimate_season());
+    }
+    const bool use_twin = twin_start.has_value();
+    if (use_twin) twin = &*twin_start;
     Profile profile(problem, solver, use_twin ? twin->initial_state : *heuristic, options.max_evaluations, clock,
                     deadline);
     std::vector<std::vector<double>> start_points;

@@ -33,13 +33,18 @@ Status CheckFormSuitsData(const model::ModelSpec& spec, std::span<const double> 
 
 // FitModel after options and data have been checked once. `twin`, when set, is the fitted
 // additive-error form with the same trend and season as a multiplicative-error `spec` (same state
-// updates, likelihoods that differ only in the error scale): its optimum replaces the generic
-// start points of the concentrated search (one start instead of `options.starts`).
+// updates, likelihoods that differ only in the error scale), or the additive-season form with the
+// same error and trend as a multiplicative-season `spec`: its optimum replaces the generic start
+// points of the concentrated search (one start instead of `options.starts`; the probe still runs).
 Result<FitResult> FitValidated(const model::ModelSpec& spec, std::span<const double> y, const DataSummary& data,
                                const FitOptions& options, const Clock& clock, const FitResult* twin = nullptr);
 
 // True when `twin` may seed the search for `spec` (see FitValidated).
 bool IsErrorTwin(const model::ModelSpec& spec, const model::ModelSpec& twin);
+// True when `twin` is the additive-season form with the same error and trend as a
+// multiplicative-season `spec`: its optimum, seasonal states turned into factors, seeds the
+// search the same way (nearby optimum on data a multiplicative season suits).
+bool IsSeasonTwin(const model::ModelSpec& spec, const model::ModelSpec& twin);
 
 // "%.6g" of v, for messages.
 std::string FormatValue(double v);

@@ -109,11 +109,12 @@ Result<Selection> SelectModel(std::span<const double> y, const FitOptions& optio
       skipped.push_back(std::move(c));
       continue;
     }
-    // A multiplicative-error form starts from its additive-error twin's optimum when that was
-    // fitted earlier in the list (the default candidates list every A form first).
+    // A multiplicative-error form starts from its additive-error twin's optimum, a
+    // multiplicative-season form from its additive-season twin's, when that was fitted earlier in
+    // the list (the default candidates list every A error form first and A season before M).
     const FitResult* twin = nullptr;
     for (const Candidate& done : fitted) {
-      if (IsErrorTwin(spec, done.spec)) twin = &*done.fit;
+      if (IsErrorTwin(spec, done.spec) || IsSeasonTwin(spec, done.spec)) twin = &*done.fit;
     }
     auto fit = FitValidated(spec, y, *data, options, clock, twin);
     if (!fit.ok()) {
