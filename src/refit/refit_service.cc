@@ -150,7 +150,8 @@ class Service final : public stream::RefitService {
       last_age_scan_ms_ = now_ms;
       for (SeriesId id : triggers_.Aged(now_ms)) Queue({id, Trigger::kAge, triggers_.ModelTime(id)});
     }
-    if (requests_ && now_ms - last_request_poll_ms_ >= options_.request_poll_ms) {
+    if (requests_ && !stopping_ && now_ms - last_request_poll_ms_ >= options_.request_poll_ms) {
+      // (Not while stopping: a request taken then could not be queued and would be lost.)
       last_request_poll_ms_ = now_ms;
       ReadRequests(engine);
     }
