@@ -742,15 +742,28 @@ bool IsSeasonTwin(const ModelSpec& spec, const ModelSpec& twin) {
          StateSolver::Supports(spec);
 }
 
+bool IsTrendTwin(const ModelSpec& spec, const ModelSpec& twin) {
+  return spec.trend == model::TrendType::kAdditiveDamped && twin.trend == model::TrendType::kAdditive &&
+         spec.error == model::ErrorType::kAdditive && twin.error == spec.error &&
+         spec.season == twin.season && spec.period == twin.period && StateSolver::Supports(spec);
+}
+
 namespace {
 
-// The twin's optimum as a start for `spec`: unchanged for an error twin; for a season twin the
+// The twin's optimum as a start for `spec`: unchanged for an error twin; for a trend twin with
+// phi at the top of the usual range (a damped form starts nearly undamped); for a season twin the
 // additive seasonal states become factors 1 + s / level (renormalised to mean 1), gamma kept
 // (s_t = s_{t-m} + gamma mu eps against s_t = s_{t-m} (1 + gamma eps) with mu ~ level s).
 // Empty when a factor would not be clearly positive, or when the seasonal states are not
 // estimated (they stay at this form's own heuristic values then, not the twin's).
 std::optional<FitResult> TwinStart(const ModelSpec& spec, const FitResult& twin, bool estimate_season) {
   if (IsErrorTwin(spec, twin.spec)) return twin;
+  if (IsTrendTwin(spec, twin.spec)) {
+    FitResult out = twin;
+    out.spec = spec;
+    out.params.phi = 0.98;
+    return out;
+  }
   if (!IsSeasonTwin(spec, twin.spec) || !estimate_season || !(twin.initial_state.level > 0)) return std::nullopt;
   std::vector<double> season = model::SeasonChronological(twin.initial_state);
   double mean = 0.0;

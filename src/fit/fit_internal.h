@@ -45,6 +45,10 @@ bool IsErrorTwin(const model::ModelSpec& spec, const model::ModelSpec& twin);
 // multiplicative-season `spec`: its optimum, seasonal states turned into factors, seeds the
 // search the same way (nearby optimum on data a multiplicative season suits).
 bool IsSeasonTwin(const model::ModelSpec& spec, const model::ModelSpec& twin);
+// True when `twin` is the additive-trend form with the same additive error and season as a
+// damped `spec`: its optimum with phi at the top of the usual range (nearly undamped) seeds the
+// search the same way.
+bool IsTrendTwin(const model::ModelSpec& spec, const model::ModelSpec& twin);
 
 // "%.6g" of v, for messages.
 std::string FormatValue(double v);

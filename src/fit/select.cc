@@ -114,7 +114,7 @@ Result<Selection> SelectModel(std::span<const double> y, const FitOptions& optio
     // the list (the default candidates list every A error form first and A season before M).
     const FitResult* twin = nullptr;
     for (const Candidate& done : fitted) {
-      if (IsErrorTwin(spec, done.spec) || IsSeasonTwin(spec, done.spec)) twin = &*done.fit;
+      if (IsErrorTwin(spec, done.spec) || IsSeasonTwin(spec, done.spec) || IsTrendTwin(spec, done.spec)) twin = &*done.fit;
     }
     auto fit = FitValidated(spec, y, *data, options, clock, twin);
     if (!fit.ok()) {
