@@ -347,15 +347,14 @@ bool ParamGradientPass(std::span<const double> y, const model::Params& params, b
 
 }  // namespace
 
-bool StateSolver::ParamGradient(const model::Params& params, double level, double trend,
-                                  const std::vector<double>& season, double grad[4]) {
-  const bool positive = spec_.needs_positive_data();
-  auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
-    return ParamGradientPass<kTrend, kSeason, kMultError>(y_, params, spec_.damped(), level, trend, season, positive,
-                                                          season_work_, t_param_season_, grad);
-  };
+namespace {
+
+// Calls run.template operator()<kTrend, kSeason, kMultError>() for the shape of `spec`: one
+// instantiation per (trend present, season type, error type).
+template <typename Run>
+bool DispatchShape(const model::ModelSpec& spec, Run& run) {
   auto by_season = [&]<bool kTrend, bool kMultError>() {
-    switch (spec_.season) {
+    switch (spec.season) {
       case model::SeasonType::kAdditive:
         return run.template operator()<kTrend, model::SeasonType::kAdditive, kMultError>();
       case model::SeasonType::kMultiplicative:
@@ -364,11 +363,23 @@ bool StateSolver::ParamGradient(const model::Params& params, double level, doubl
     }
     return run.template operator()<kTrend, model::SeasonType::kNone, kMultError>();
   };
-  const bool mult_error = spec_.error == model::ErrorType::kMultiplicative;
-  if (spec_.has_trend()) {
+  const bool mult_error = spec.error == model::ErrorType::kMultiplicative;
+  if (spec.has_trend()) {
     return mult_error ? by_season.template operator()<true, true>() : by_season.template operator()<true, false>();
   }
   return mult_error ? by_season.template operator()<false, true>() : by_season.template operator()<false, false>();
+}
+
+}  // namespace
+
+bool StateSolver::ParamGradient(const model::Params& params, double level, double trend,
+                                  const std::vector<double>& season, double grad[4]) {
+  const bool positive = spec_.needs_positive_data();
+  auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
+    return ParamGradientPass<kTrend, kSeason, kMultError>(y_, params, spec_.damped(), level, trend, season, positive,
+                                                          season_work_, t_param_season_, grad);
+  };
+  return DispatchShape(spec_, run);
 }
 
 bool StateSolver::Tangents(const model::Params& params, double level, double trend,
@@ -407,21 +418,7 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
                                                           jacobian_.data(), residuals_.data(), grad_log_mu_.data(),
                                                           positive);
   };
-  auto by_season = [&]<bool kTrend, bool kMultError>() {
-    switch (spec_.season) {
-      case model::SeasonType::kAdditive:
-        return run.template operator()<kTrend, model::SeasonType::kAdditive, kMultError>();
-      case model::SeasonType::kMultiplicative:
-        return run.template operator()<kTrend, model::SeasonType::kMultiplicative, kMultError>();
-      case model::SeasonType::kNone: break;
-    }
-    return run.template operator()<kTrend, model::SeasonType::kNone, kMultError>();
-  };
-  const bool mult_error = spec_.error == model::ErrorType::kMultiplicative;
-  if (has_trend) {
-    return mult_error ? by_season.template operator()<true, true>() : by_season.template operator()<true, false>();
-  }
-  return mult_error ? by_season.template operator()<false, true>() : by_season.template operator()<false, false>();
+  return DispatchShape(spec_, run);
 }
 
 double StateSolver::Solve(const model::Params& params, double& level, double& trend,
