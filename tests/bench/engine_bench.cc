@@ -57,6 +57,7 @@
 #include "plimsoll/stream/decode.h"
 #include "plimsoll/stream/engine.h"
 #include "plimsoll/stream/source.h"
+#include "stream/one_stream_source_util.h"
 
 namespace plimsoll::bench {
 namespace {
@@ -181,9 +182,9 @@ RecordBuffer MakeRecords(size_t series, int64_t first_round, int64_t rounds, uin
 }
 
 // Serves a RecordBuffer as one file-like stream (byte offsets); Aborted at its end.
-class MemorySource final : public stream::RecordSource {
+class MemorySource final : public stream::testing::OneStreamSource {
  public:
-  MemorySource(const RecordBuffer& records, std::string name) : records_(records), streams_{{std::move(name), 0}} {}
+  MemorySource(const RecordBuffer& records, std::string name) : OneStreamSource(std::move(name)), records_(records) {}
 
   Status Poll(std::vector<stream::RawRecord>& out, size_t max_records, int) override {
     out.clear();
@@ -196,14 +197,9 @@ class MemorySource final : public stream::RecordSource {
     }
     return Status::Ok();
   }
-  std::span<const stream::StreamId> Streams() const override { return streams_; }
-  Status Acknowledge(std::span<const stream::SourcePosition>) override { return Status::Ok(); }
-  Status Pause(const stream::StreamId&) override { return Status::Ok(); }
-  Status Resume(const stream::StreamId&) override { return Status::Ok(); }
 
  private:
   const RecordBuffer& records_;
-  std::vector<stream::StreamId> streams_;
   size_t next_ = 0;
 };
 

@@ -16,6 +16,7 @@
 #include "plimsoll/stream/config.h"
 #include "plimsoll/stream/daemon.h"
 #include "plimsoll/stream/fit_chooser.h"
+#include "stream/one_stream_source_util.h"
 #include "refit/refit_test_util.h"
 
 namespace plimsoll::refit {
@@ -25,10 +26,10 @@ using testing::kMinute;
 
 // A live-like feed: one record per Poll; past `gate` it holds back (empty polls) until
 // `open()` says so, the way a live stream keeps arriving while a refit runs.
-class GatedSource final : public stream::RecordSource {
+class GatedSource final : public stream::testing::OneStreamSource {
  public:
   GatedSource(std::vector<std::string> lines, size_t gate, std::function<bool()> open)
-      : lines_(std::move(lines)), gate_(gate), open_(std::move(open)) {}
+      : OneStreamSource("memory:feed"), lines_(std::move(lines)), gate_(gate), open_(std::move(open)) {}
   Status Poll(std::vector<stream::RawRecord>& out, size_t max_records, int timeout_ms) override {
     out.clear();
     if (next_ == lines_.size()) return Status::Aborted("end of feed");
@@ -45,10 +46,6 @@ class GatedSource final : public stream::RecordSource {
     ++next_;
     return Status::Ok();
   }
-  std::span<const stream::StreamId> Streams() const override { return streams_; }
-  Status Acknowledge(std::span<const stream::SourcePosition>) override { return Status::Ok(); }
-  Status Pause(const stream::StreamId&) override { return Status::Ok(); }
-  Status Resume(const stream::StreamId&) override { return Status::Ok(); }
 
  private:
   std::vector<std::string> lines_;
@@ -56,7 +53,6 @@ class GatedSource final : public stream::RecordSource {
   std::function<bool()> open_;
   size_t next_ = 0;
   int held_polls_ = 0;
-  std::vector<stream::StreamId> streams_{{"memory:feed", 0}};
 };
 
 constexpr int64_t kShiftAt = 200;

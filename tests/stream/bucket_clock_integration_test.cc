@@ -15,6 +15,7 @@
 #include "plimsoll/stream/config.h"
 #include "plimsoll/stream/daemon.h"
 #include "plimsoll/stream/fit_chooser.h"
+#include "stream/one_stream_source_util.h"
 
 namespace plimsoll::stream {
 namespace {
@@ -24,10 +25,10 @@ constexpr int64_t kHourMs = 60 * kMinuteMs;
 
 // Delivers `lines` 50 per poll, then `idle_polls` empty polls; each poll moves the manual clock
 // on by `poll_ms` (a live source waiting for data).
-class BacklogSource final : public RecordSource {
+class BacklogSource final : public testing::OneStreamSource {
  public:
   BacklogSource(std::vector<std::string> lines, int idle_polls, int64_t idle_poll_ms, ManualClock& clock)
-      : lines_(std::move(lines)), idle_polls_(idle_polls), idle_poll_ms_(idle_poll_ms), clock_(clock) {}
+      : OneStreamSource("memory:backlog"), lines_(std::move(lines)), idle_polls_(idle_polls), idle_poll_ms_(idle_poll_ms), clock_(clock) {}
   Status Poll(std::vector<RawRecord>& out, size_t max_records, int) override {
     out.clear();
     if (next_ < lines_.size()) {
@@ -42,10 +43,6 @@ class BacklogSource final : public RecordSource {
     clock_.AdvanceMillis(idle_poll_ms_);
     return Status::Ok();
   }
-  std::span<const StreamId> Streams() const override { return streams_; }
-  Status Acknowledge(std::span<const SourcePosition>) override { return Status::Ok(); }
-  Status Pause(const StreamId&) override { return Status::Ok(); }
-  Status Resume(const StreamId&) override { return Status::Ok(); }
 
  private:
   std::vector<std::string> lines_;
@@ -53,7 +50,6 @@ class BacklogSource final : public RecordSource {
   int64_t idle_poll_ms_;
   ManualClock& clock_;
   size_t next_ = 0;
-  std::vector<StreamId> streams_{{"memory:backlog", 0}};
 };
 
 TEST_CASE("a live count feed's backlog is bucketed by record time and a silence by wall time", "[stream]") {

@@ -25,6 +25,7 @@
 #include "plimsoll/stream/decode.h"
 #include "plimsoll/stream/engine.h"
 #include "plimsoll/stream/source.h"
+#include "stream/one_stream_source_util.h"
 
 namespace plimsoll::stream {
 namespace {
@@ -65,9 +66,9 @@ Feed MakeFeed() {
   return feed;
 }
 
-class FeedSource final : public RecordSource {
+class FeedSource final : public testing::OneStreamSource {
  public:
-  FeedSource(const Feed& feed, int64_t from_offset) : feed_(feed), streams_{{"feed", 0}} {
+  FeedSource(const Feed& feed, int64_t from_offset) : OneStreamSource("feed"), feed_(feed) {
     while (next_ < feed_.lines.size() && feed_.lines[next_].first < from_offset) ++next_;
   }
   Status Poll(std::vector<RawRecord>& out, size_t max_records, int) override {
@@ -79,14 +80,9 @@ class FeedSource final : public RecordSource {
     }
     return Status::Ok();
   }
-  std::span<const StreamId> Streams() const override { return streams_; }
-  Status Acknowledge(std::span<const SourcePosition>) override { return Status::Ok(); }
-  Status Pause(const StreamId&) override { return Status::Ok(); }
-  Status Resume(const StreamId&) override { return Status::Ok(); }
 
  private:
   const Feed& feed_;
-  std::vector<StreamId> streams_;
   size_t next_ = 0;
 };
 
