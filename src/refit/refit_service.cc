@@ -125,8 +125,8 @@ class Service final : public stream::RefitService {
     }
   }
 
-  void OnBatch(Engine& engine, const EngineBatch& taken, int64_t now_ms,
-               std::vector<store::EventRecord>& events) override {
+  size_t OnBatch(Engine& engine, const EngineBatch& taken, int64_t now_ms,
+                 std::vector<store::EventRecord>& events) override {
     now_ms_ = now_ms;
     for (const stream::EngineEvent& e : taken.events)
       if (e.kind == stream::EventKind::kReseeded) MarkStale(e.series, Stale::kReseeded);
@@ -155,8 +155,9 @@ class Service final : public stream::RefitService {
       last_request_poll_ms_ = now_ms;
       ReadRequests(engine);
     }
-    InstallFinished(engine, events);
+    const size_t installed = InstallFinished(engine, events);
     Dispatch(engine);
+    return installed;
   }
 
   void Stop(Engine& engine) override {
@@ -396,7 +397,9 @@ class Service final : public stream::RefitService {
     free_readers_.push_back(std::move(reader));
   }
 
-  void InstallFinished(Engine& engine, std::vector<store::EventRecord>& events) {
+  // Returns how many finished jobs changed a series in the engine (models and warm-up fits).
+  size_t InstallFinished(Engine& engine, std::vector<store::EventRecord>& events) {
+    size_t installed = 0;
     std::vector<SeriesId> done;
     {
       std::lock_guard<std::mutex> lock(done_mu_);
@@ -412,8 +415,9 @@ class Service final : public stream::RefitService {
       }
       running_.pop_back();
       slot_of_[id] = -1;
-      Finish(engine, f, events);
+      if (Finish(engine, f, events)) ++installed;
     }
+    return installed;
   }
 
   void Event(std::vector<store::EventRecord>& events, const Job& job, std::string kind, JsonWriter& w) {
@@ -421,13 +425,17 @@ class Service final : public stream::RefitService {
     events.push_back(store::EventRecord{now_ms_, job.name, std::move(kind), w.Take()});
   }
 
-  void Finish(Engine& engine, InFlight& f, std::vector<store::EventRecord>& events) {
+  // Returns whether it changed the series in the engine.
+  bool Finish(Engine& engine, InFlight& f, std::vector<store::EventRecord>& events) {
     Job& job = *f.job;
     const Result<ModelChoice>& choice = *job.choice;
     if (job.warmup) {
-      if (engine.CompleteWarmup(job.series, job.epoch, choice).ok()) ++counters_.warmups;
-      else ++counters_.discarded_reseeded;
-      return;
+      if (engine.CompleteWarmup(job.series, job.epoch, choice).ok()) {
+        ++counters_.warmups;
+        return true;
+      }
+      ++counters_.discarded_reseeded;
+      return false;
     }
     const stream::SeriesView view = engine.View(job.series);
     const int64_t caught_up = view.last_step - job.snapshot_step;
@@ -445,7 +453,7 @@ class Service final : public stream::RefitService {
       JsonWriter w;
       w.BeginObject().Field("reason", std::string("series ") + StaleText(stale) + " meanwhile");
       Event(events, job, "refit_discarded", w);
-      return;
+      return false;
     }
     Status status = choice.ok() ? Status::Ok() : choice.status();
     if (status.ok() && job.micros > options_.time_budget_ms * 1000) {
@@ -472,7 +480,7 @@ class Service final : public stream::RefitService {
       JsonWriter w;
       w.BeginObject().Field("reason", status.ToString()).Field("form", job.old_form);
       Event(events, job, "refit_failed", w);
-      return;
+      return false;
     }
     ++counters_.installed;
     if (job.trigger == Trigger::kProfileChange && requests_) {
@@ -496,6 +504,7 @@ class Service final : public stream::RefitService {
     w.Field("snapshot_step", job.snapshot_step).Field("caught_up", caught_up);
     w.Field("reason", std::string("refit: ") + std::string(TriggerName(job.trigger)));
     Event(events, job, "model_changed", w);
+    return true;
   }
 
   const RefitServiceOptions options_;

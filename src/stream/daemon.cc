@@ -52,6 +52,9 @@ struct Pending {
   std::vector<store::DeadLetterRecord> dead_letters;
   size_t records = 0;  // records polled since the last checkpoint
   int64_t last_checkpoint_ns = 0;
+  // A refit was installed after the last commit was encoded: the next commit is a checkpoint (an
+  // install is not re-derived from the input, so a restart must not start before it).
+  bool installed_since_checkpoint = false;
   std::vector<uint32_t> history_slot;  // ToStoreBatch scratch by SeriesId, kNoSlot between calls
 
   void AddDirty(std::span<const SeriesId> ids) {
@@ -183,7 +186,8 @@ namespace {
 
 // Turns the engine's id-keyed batch into the store's rows (names, encoded checkpoints).
 // Everything but states and positions (CompleteBatch adds those at a checkpoint).
-store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch&& batch, int64_t now_ms,
+// Moves only the dead letters' payloads out of `batch`.
+store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_t now_ms,
                                 std::span<const StreamId> streams, Pending& pending) {
   store::CommitBatch out;
   const auto name = [&](SeriesId id) -> const std::string& { return engine.SeriesName(id); };
@@ -322,24 +326,31 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
     if (std::optional<store::CommitBatch> durable = im.writer->TakeDurable()) handle_durable(std::move(*durable));
   };
   // `checkpoint`: the commit must store states and positions (drain: shutdown, revoke, refits).
+  // The refit service installs finished fits only after the commit's checkpoints are encoded:
+  // what an install changes (model, catch-up flags and alerts, states) goes to the next commit,
+  // which is then a checkpoint. A crash in between finds the series as before the install.
   const auto submit = [&](bool checkpoint) {
     EngineBatch taken = engine_->TakeBatch();
-    std::vector<store::EventRecord> refit_events;
-    if (im.refits) im.refits->OnBatch(*engine_, taken, clock->WallMillis(), refit_events);
     Pending& pending = im.pending;
     pending.AddDirty(taken.dirty);
     pending.records += uncommitted;
     const int64_t now_ns = clock->MonotonicNanos();
-    checkpoint = checkpoint || now_ns - pending.last_checkpoint_ns >= options_.checkpoint_ms * 1'000'000 ||
+    checkpoint = checkpoint || pending.installed_since_checkpoint ||
+                 now_ns - pending.last_checkpoint_ns >= options_.checkpoint_ms * 1'000'000 ||
                  (options_.checkpoint_records_per_state > 0 &&
                   pending.dirty.size() * options_.checkpoint_records_per_state <= pending.records);
-    store::CommitBatch batch =
-        ToStoreBatch(*engine_, std::move(taken), clock->WallMillis(), source.Streams(), pending);
-    for (store::EventRecord& e : refit_events) batch.events.push_back(std::move(e));
+    store::CommitBatch batch = ToStoreBatch(*engine_, taken, clock->WallMillis(), source.Streams(), pending);
     CompleteBatch(*engine_, batch, source.Streams(), pending, checkpoint);
     if (checkpoint) {
       pending.records = 0;
       pending.last_checkpoint_ns = now_ns;
+      pending.installed_since_checkpoint = false;
+    }
+    if (im.refits) {
+      std::vector<store::EventRecord> refit_events;
+      if (im.refits->OnBatch(*engine_, taken, clock->WallMillis(), refit_events) > 0)
+        pending.installed_since_checkpoint = true;
+      std::move(refit_events.begin(), refit_events.end(), std::back_inserter(pending.events));
     }
     if (!batch.empty()) im.writer->Submit(std::move(batch));
     uncommitted = 0;

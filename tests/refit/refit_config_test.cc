@@ -14,7 +14,7 @@ queue = 50
 time_budget = "2s"
 max_evals = 500
 max_lag = 77
-background_warmup = true
+background_warmup = false
 [[profile]]
 match = "a-*"
 refit_every = 10
@@ -25,7 +25,7 @@ refit_max_age = "1h"
 )");
   REQUIRE(config.ok());
   CHECK(config->refit.max_evals == 500);
-  CHECK(config->refit.background_warmup);
+  CHECK_FALSE(config->refit.background_warmup);
   RefitServiceOptions options = RefitServiceOptionsFromConfig(*config);
   CHECK(options.threads == 3);
   CHECK(options.queue_capacity == 50);
@@ -43,7 +43,7 @@ TEST_CASE("the default thread count is cores - 1 and at least 1", "[refit]") {
   REQUIRE(config.ok());
   CHECK(RefitServiceOptionsFromConfig(*config).threads == DefaultThreads());
   CHECK(DefaultThreads() >= 1);
-  CHECK_FALSE(config->refit.background_warmup);
+  CHECK(config->refit.background_warmup);
   CHECK(config->profiles[0].refit_on_alert);
 }
 

@@ -123,9 +123,7 @@ struct RefitOptions {
   int max_evals = 10'000;    // likelihood evaluations per candidate form in a refit (fit's max_evaluations)
   int64_t max_lag = 10'000;  // steps a series may take while its refit runs; beyond, the result is discarded
   // First fits on the refit threads (true) or inline, stalling the input for the fit (false).
-  // Off by default: after a SIGKILL under the Kafka source the re-issued background warm-up gave
-  // a flag set different from an uninterrupted run (states equal); not yet understood.
-  bool background_warmup = false;
+  bool background_warmup = true;
 };
 
 // [http]

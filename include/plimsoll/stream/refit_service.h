@@ -5,7 +5,8 @@
 //
 // The daemon calls it on its owner thread at each group commit with the batch just taken from
 // the engine. Finished refits are installed into the engine there (their model changes join the
-// engine's next batch); nothing on the per-record path waits for a fit.
+// engine's next batch, which the daemon stores as a checkpoint); nothing on the per-record path
+// waits for a fit.
 //
 // Thread-safety: every method is called on the daemon's owner thread.
 
@@ -33,11 +34,13 @@ class RefitService {
   // Called once by Daemon::Open after the stored series are restored, before Run.
   virtual void Start(Engine& engine, const std::vector<RestoredSeries>& restored) = 0;
 
-  // Called at each group commit with the batch just taken from `engine` (before it is stored):
-  // installs finished fits, queues refits the batch triggers, hands queued work to the workers,
-  // and appends event rows (model changes, failures, discards) to `events`. Never blocks on a fit.
-  virtual void OnBatch(Engine& engine, const EngineBatch& taken, int64_t now_ms,
-                       std::vector<store::EventRecord>& events) = 0;
+  // Called at each group commit with the batch just taken from `engine`, after the commit's
+  // rows and checkpoints were encoded from it: installs finished fits (their effects join the
+  // engine's next batch), queues refits the batch triggers, hands queued work to the workers,
+  // and appends event rows (model changes, failures, discards) to `events`, which the daemon
+  // stores with the next checkpoint. Returns the number of models installed. Never blocks on a fit.
+  virtual size_t OnBatch(Engine& engine, const EngineBatch& taken, int64_t now_ms,
+                         std::vector<store::EventRecord>& events) = 0;
 
   // End of Run: drops queued refits, runs the queued first fits (warm-ups: a stopped daemon
   // leaves no series without its model that an inline fit would have given one) and waits for
