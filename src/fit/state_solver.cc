@@ -7,6 +7,8 @@
 #include <immintrin.h>
 
 #include <algorithm>
+#include <bit>
+#include <cstdint>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -84,19 +86,19 @@ __attribute__((target("avx2,fma"))) void GramAvx2(const double* jac, size_t n, s
 }  // namespace
 
 // J'J of the first p columns (lower triangle filled; p x p).
-Eigen::MatrixXd StateSolver::Gram() const {
+Eigen::MatrixXd StateSolver::Gram(const AlignedVector& rows) const {
   const Eigen::Index p = p_;
   Eigen::MatrixXd h(p, p);
   if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma")) {
     const size_t pp = static_cast<size_t>(pp_);
     gram_.assign(pp * pp, 0.0);
-    GramAvx2(jacobian_.data(), static_cast<size_t>(n_obs_), pp, gram_.data());
+    GramAvx2(rows.data(), static_cast<size_t>(n_obs_), pp, gram_.data());
     for (Eigen::Index i = 0; i < p; ++i) {
       for (Eigen::Index k = 0; k <= i; ++k) h(i, k) = gram_[static_cast<size_t>(i) * pp + static_cast<size_t>(k)];
     }
     return h;
   }
-  const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
+  const JacobianMap jac(rows.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
   h.setZero();
   h.selfadjointView<Eigen::Lower>().rankUpdate(jac.transpose());
   return h;
@@ -113,8 +115,28 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
   for (double v : y) n_obs_ += std::isnan(v) ? 0 : 1;
   pp_ = (p_ + 3) / 4 * 4;
   const size_t pp = static_cast<size_t>(pp_);
-  // One spare row: the pass writes a gap's row before knowing it will not keep it.
-  jacobian_.resize((static_cast<size_t>(n_obs_) + 1) * pp);
+  // One spare row: the pass writes a gap's row before knowing it will not keep it. The
+  // affine_mu() forms keep a row for every step (gaps included).
+  jacobian_.resize((std::max(static_cast<size_t>(n_obs_) + 1, y.size())) * pp);
+  if (affine_mu()) {
+    for (auto* v : {&mu0_, &mu_, &trial_mu_, &jd_, &weights_, &inv_mu_, &trial_inv_mu_, &resid_, &trial_resid_}) {
+      v->resize(y.size());
+    }
+    scaled_.resize(static_cast<size_t>(n_obs_) * pp);
+  }
+  // Without gaps an additive season makes the recursion of the state's tangents time-invariant
+  // in the frame that rotates with the season, so a seasonal state's column is the first one's
+  // shifted by its position (see SolveShifted).
+  const size_t m = static_cast<size_t>(spec.period);
+  shifted_ = estimate_season_ && spec.season == model::SeasonType::kAdditive &&
+             static_cast<size_t>(n_obs_) == y.size() && m >= 2 && y.size() >= 2 * m;
+  if (shifted_) {
+    lag_width_ = (m + 3) / 4 * 4;
+    impulse_.resize(y.size() * 4);
+    columns_.assign(4 * (y.size() + lag_width_ + 4), 0.0);
+    lags_.resize(4 * lag_width_);
+    jd_shift_.resize(y.size());
+  }
   residuals_.resize(static_cast<size_t>(n_obs_));
   for (auto* v : {&grad_log_mu_, &t_level_, &t_trend_}) v->resize(pp);
   t_season_.resize(spec.has_season() ? pp * static_cast<size_t>(spec.period) : 0);
@@ -122,6 +144,10 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
 
 bool StateSolver::affine() const {
   return spec_.error == model::ErrorType::kAdditive && spec_.season != model::SeasonType::kMultiplicative;
+}
+
+bool StateSolver::affine_mu() const {
+  return spec_.error == model::ErrorType::kMultiplicative && spec_.season != model::SeasonType::kMultiplicative;
 }
 
 double StateSolver::Objective(const model::Params& params, double level, double trend,
@@ -146,7 +172,9 @@ typedef double Pair __attribute__((vector_size(16), may_alias));
 
 // The tangent-linear pass for one shape, all columns of a step fused in one loop. Columns are
 // padded to an even count (the pad columns start at zero and stay zero).
-template <typename V, bool kTrend, model::SeasonType kSeason, bool kMultError>
+// With kMuRows (relative error, additive components) the rows are d mu / d state for every step
+// (gaps included) and `residuals` receives mu; grad_log_mu is left alone.
+template <typename V, bool kTrend, model::SeasonType kSeason, bool kMultError, bool kMuRows = false>
 __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y, const model::Params& params,
                                                        double phi, double level, double trend,
                                                        std::vector<double>& season_work, size_t pp,
@@ -207,7 +235,9 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
       if constexpr (kTrend) vb[i] = phi * vb[i] + beta * dsc;
       if constexpr (kAddSeason) vs[i] = ds + gamma * de;
       if constexpr (kMultSeason) vs[i] = ds + gamma * (de * inv_lp - e_lp2 * dlp);
-      if constexpr (kMultError) {
+      if constexpr (kMuRows) {
+        vj[i] = dmu;
+      } else if constexpr (kMultError) {
         vj[i] = c * dmu;
         vg[i] += keep * inv_mu * dmu;
       } else {
@@ -219,6 +249,11 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
     if constexpr (kAddSeason) season_work[k] = s + gamma * e;
     if constexpr (kMultSeason) season_work[k] = s + gamma * e / lp;
     if (kHasSeason && ++k == m) k = 0;
+    if constexpr (kMuRows) {
+      residuals[row] = mu;
+      ++row;
+      continue;
+    }
     if (missing) continue;
     residuals[row] = kMultError ? e / mu : e;
     ++row;
@@ -231,14 +266,15 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
 // 32-byte aligned (AlignedVector, rows of a multiple of 4 doubles).
 typedef double Quad __attribute__((vector_size(32), may_alias));
 
-template <bool kTrend, model::SeasonType kSeason, bool kMultError>
+template <bool kTrend, model::SeasonType kSeason, bool kMultError, bool kMuRows>
 __attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, const model::Params& params, double phi,
                                                      double level, double trend, std::vector<double>& season_work,
                                                      size_t pp, double* tl, double* tb, double* t_season,
                                                      double* jacobian, double* residuals, double* grad_log_mu,
                                                      bool needs_positive) {
-  return TangentPass<Quad, kTrend, kSeason, kMultError>(y, params, phi, level, trend, season_work, pp, tl, tb, t_season,
-                                                        jacobian, residuals, grad_log_mu, needs_positive);
+  return TangentPass<Quad, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl, tb,
+                                                                 t_season, jacobian, residuals, grad_log_mu,
+                                                                 needs_positive);
 }
 
 // The gradient of -loglik with respect to (alpha, beta, gamma, phi) with the state held fixed: one
@@ -383,8 +419,8 @@ bool StateSolver::ParamGradient(const model::Params& params, double level, doubl
 }
 
 bool StateSolver::Tangents(const model::Params& params, double level, double trend,
-                           const std::vector<double>& season) {
-  const size_t pp = static_cast<size_t>(pp_);
+                           const std::vector<double>& season, bool mu_rows, bool impulse) {
+  const size_t pp = impulse ? 4 : static_cast<size_t>(pp_);
   const size_t m = season.size();
   const bool has_trend = spec_.has_trend();
   std::fill(t_level_.begin(), t_level_.end(), 0.0);
@@ -393,7 +429,9 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
   std::fill(grad_log_mu_.begin(), grad_log_mu_.end(), 0.0);
   t_level_[0] = 1.0;
   if (has_trend) t_trend_[1] = 1.0;
-  if (estimate_season_) {
+  if (impulse) {
+    t_season_[2] = 1.0;  // the first chronological seasonal state alone
+  } else if (estimate_season_) {
     // Free seasonal coordinates are the first m - 1 chronological states; the last follows from
     // the normalisation (sum 0 or mean 1), so it moves by minus their sum.
     const size_t o = has_trend ? 2 : 1;
@@ -406,19 +444,343 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
   const double phi = spec_.damped() ? params.phi : 1.0;
   const bool positive = spec_.needs_positive_data();
   const bool avx2 = __builtin_cpu_supports("avx2");
+  double* rows = impulse ? impulse_.data() : jacobian_.data();
   auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
-    if (avx2) {
-      return TangentPassAvx2<kTrend, kSeason, kMultError>(y_, params, phi, level, trend, season_work_, pp,
-                                                          t_level_.data(), t_trend_.data(), t_season_.data(),
-                                                          jacobian_.data(), residuals_.data(), grad_log_mu_.data(),
-                                                          positive);
+    auto pass = [&]<bool kMuRows>(double* out) {
+      if (avx2) {
+        return TangentPassAvx2<kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
+                                                                     t_level_.data(), t_trend_.data(),
+                                                                     t_season_.data(), rows, out,
+                                                                     grad_log_mu_.data(), positive);
+      }
+      return TangentPass<Pair, kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
+                                                                     t_level_.data(), t_trend_.data(),
+                                                                     t_season_.data(), rows, out,
+                                                                     grad_log_mu_.data(), positive);
+    };
+    if constexpr (kMultError && kSeason != model::SeasonType::kMultiplicative) {
+      if (mu_rows) return pass.template operator()<true>(mu0_.data());
     }
-    return TangentPass<Pair, kTrend, kSeason, kMultError>(y_, params, phi, level, trend, season_work_, pp,
-                                                          t_level_.data(), t_trend_.data(), t_season_.data(),
-                                                          jacobian_.data(), residuals_.data(), grad_log_mu_.data(),
-                                                          positive);
+    return pass.template operator()<false>(residuals_.data());
   };
   return DispatchShape(spec_, run);
+}
+
+namespace {
+
+// out[a * mw + j] += sum over v < n of c[v] * xs[a][v + j], for lags j < mw (mw a multiple of the
+// vector width; xs[a] zero from n on and readable up to n + mw). Lags run across the vector
+// lanes; two accumulator sets over alternate v halve the dependency chains. Each sum runs over v
+// in a fixed order (deterministic).
+template <typename V, int kArrays>
+__attribute__((always_inline)) inline void LagSums(const double* c, const double* const* xs, size_t n, size_t mw,
+                                                   double* out) {
+  constexpr size_t kW = sizeof(V) / sizeof(double);
+  for (size_t j0 = 0; j0 < mw; j0 += kW) {
+    V acc0[kArrays] = {}, acc1[kArrays] = {};
+    size_t v = 0;
+    for (; v + 1 < n; v += 2) {
+      const double c0 = c[v], c1 = c[v + 1];
+      for (int a = 0; a < kArrays; ++a) {
+        V x0, x1;
+        __builtin_memcpy(&x0, xs[a] + v + j0, sizeof(V));
+        __builtin_memcpy(&x1, xs[a] + v + 1 + j0, sizeof(V));
+        acc0[a] += c0 * x0;
+        acc1[a] += c1 * x1;
+      }
+    }
+    for (; v < n; ++v) {
+      for (int a = 0; a < kArrays; ++a) {
+        V x0;
+        __builtin_memcpy(&x0, xs[a] + v + j0, sizeof(V));
+        acc0[a] += c[v] * x0;
+      }
+    }
+    for (int a = 0; a < kArrays; ++a) {
+      const V sum = acc0[a] + acc1[a];
+      for (size_t l = 0; l < kW; ++l) out[static_cast<size_t>(a) * mw + j0 + l] = sum[l];
+    }
+  }
+}
+
+template <int kArrays>
+__attribute__((target("avx2,fma"))) void LagSumsAvx2(const double* c, const double* const* xs, size_t n, size_t mw,
+                                                     double* out) {
+  LagSums<Quad, kArrays>(c, xs, n, mw, out);
+}
+
+// Lag sums of 3 or 4 arrays (see LagSums), in 4-wide registers with fused multiply-adds where
+// the CPU has AVX2 and FMA.
+void LagSumsAny(const double* c, const double* const* xs, int arrays, size_t n, size_t mw, double* out) {
+  const bool avx2 = __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+  if (arrays == 4) {
+    avx2 ? LagSumsAvx2<4>(c, xs, n, mw, out) : LagSums<Pair, 4>(c, xs, n, mw, out);
+  } else {
+    avx2 ? LagSumsAvx2<3>(c, xs, n, mw, out) : LagSums<Pair, 3>(c, xs, n, mw, out);
+  }
+}
+
+// Splits x (normal, positive) into a mantissa in [1, 2) and a binary exponent added to
+// `exponent`: the sum of log mu_t is accumulated as a product, without a log per step.
+inline double Renormalise(double x, int64_t& exponent) {
+  uint64_t bits = std::bit_cast<uint64_t>(x);
+  exponent += static_cast<int64_t>((bits >> 52) & 0x7ff) - 1023;
+  bits = (bits & ~(uint64_t{0x7ff} << 52)) | (uint64_t{1023} << 52);
+  return std::bit_cast<double>(bits);
+}
+
+}  // namespace
+
+double StateSolver::MuObjective(const double* mu, double* inv_mu, double* resid) const {
+  double sse = 0.0;
+  // Four running products (independent dependency chains), each kept in [1, 2) by Renormalise.
+  double product[4] = {1.0, 1.0, 1.0, 1.0};
+  int64_t exponent = 0;
+  const size_t len = y_.size();
+  for (size_t t = 0; t < len; ++t) {
+    const double m = mu[t];
+    if (!(m > 1e-300 && m < 1e300)) return kInf;
+    const double yt = y_[t];
+    const double inv = 1.0 / m;
+    inv_mu[t] = inv;
+    if (std::isnan(yt)) {
+      resid[t] = 0.0;
+      continue;
+    }
+    const double r = (yt - m) * inv;
+    resid[t] = r;
+    sse += r * r;
+    product[t & 3] = Renormalise(product[t & 3] * m, exponent);
+  }
+  if (!(sse > 0) || !std::isfinite(sse)) return kInf;
+  const double n = n_obs_;
+  double log_product = 0.0;
+  for (double q : product) log_product += std::log(q);
+  return 0.5 * n * (std::log(2.0 * std::numbers::pi * sse / n) + 1.0) + log_product +
+         static_cast<double>(exponent) * std::numbers::ln2;
+}
+
+void StateSolver::Displace(const Eigen::VectorXd& delta, double lambda, double level, double trend,
+                           const std::vector<double>& season, double& l, double& b, std::vector<double>& s) const {
+  const size_t m = season.size();
+  const size_t o = spec_.has_trend() ? 2 : 1;
+  l = level + lambda * delta[0];
+  b = spec_.has_trend() ? trend + lambda * delta[1] : trend;
+  s = season;
+  if (estimate_season_) {
+    double moved = 0.0;
+    for (size_t j = 0; j + 1 < m; ++j) {
+      const double dj = lambda * delta[static_cast<Eigen::Index>(o + j)];
+      s[j] += dj;
+      moved += dj;
+    }
+    s[m - 1] -= moved;
+  }
+}
+
+double StateSolver::SolveAffineMu(const model::Params& params, double& level, double& trend,
+                                  std::vector<double>& season, int* passes) {
+  if (!(level > 0)) return kInf;
+  ++*passes;
+  if (!Tangents(params, level, trend, season, /*mu_rows=*/true, /*impulse=*/shifted_)) return kInf;
+  if (shifted_) RowsFromImpulse();
+  const Eigen::Index p = p_;
+  const Eigen::Index len = static_cast<Eigen::Index>(y_.size());
+  const size_t pp = static_cast<size_t>(pp_);
+  mu_ = mu0_;
+  double f = MuObjective(mu_.data(), inv_mu_.data(), resid_.data());
+  if (!std::isfinite(f)) return kInf;
+  const JacobianMap jmu(jacobian_.data(), len, p, Eigen::OuterStride<>(pp_));
+  Eigen::Map<const Eigen::VectorXd> w(weights_.data(), len);
+  Eigen::Map<Eigen::VectorXd> jd(jd_.data(), len);
+  Eigen::VectorXd total = Eigen::VectorXd::Zero(p);
+  Eigen::LDLT<Eigen::MatrixXd, Eigen::Lower> factor;
+  bool refresh = true;
+  const double n = n_obs_;
+  for (int step_count = 0; step_count < kMaxSteps; ++step_count) {
+    // r_t = (y_t - mu_t) / mu_t; d r_t / d mu_t = -y_t / mu_t^2. Gradient of n/2 log S + sum log mu
+    // scaled by S/n: J_mu' (r dr/dmu + (S/n) / mu).
+    const double sse = Eigen::Map<const Eigen::VectorXd>(resid_.data(), len).squaredNorm();
+    const double scale = sse / n;
+    for (Eigen::Index t = 0, row = 0; t < len; ++t) {
+      const size_t ti = static_cast<size_t>(t);
+      const double yt = y_[ti];
+      if (std::isnan(yt)) {
+        weights_[ti] = 0.0;
+        continue;
+      }
+      const double inv = inv_mu_[ti], r = resid_[ti], c = -yt * inv * inv;
+      weights_[ti] = c * r + scale * inv;
+      if (refresh) {
+        const double* src = jacobian_.data() + ti * pp;
+        double* dst = scaled_.data() + static_cast<size_t>(row) * pp;
+        for (size_t i = 0; i < pp; ++i) dst[i] = c * src[i];
+      }
+      ++row;
+    }
+    if (refresh) {
+      Eigen::MatrixXd h = Gram(scaled_);
+      h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
+      factor.compute(h);
+      refresh = false;
+    }
+    const Eigen::VectorXd g = jmu.transpose() * w;
+    const Eigen::VectorXd delta = -factor.solve(g);
+    if (!delta.allFinite()) break;
+    const double predicted = -0.5 * n / sse * g.dot(delta);
+    if (!(predicted > kStepTolerance * std::fabs(f))) break;
+    jd.noalias() = jmu * delta;
+    double lambda = 1.0;
+    bool accepted = false;
+    double f_new = f;
+    for (int halving = 0; halving < kMaxHalvings; ++halving, lambda *= 0.5) {
+      if (!(level + total[0] + lambda * delta[0] > 0)) continue;
+      for (size_t t = 0; t < mu_.size(); ++t) trial_mu_[t] = mu_[t] + lambda * jd_[t];
+      f_new = MuObjective(trial_mu_.data(), trial_inv_mu_.data(), trial_resid_.data());
+      if (f_new < f) {
+        accepted = true;
+        break;
+      }
+    }
+    if (!accepted) break;
+    if (lambda < 1.0) refresh = true;
+    const double gain = f - f_new;
+    f = f_new;
+    total += lambda * delta;
+    mu_.swap(trial_mu_);
+    inv_mu_.swap(trial_inv_mu_);
+    resid_.swap(trial_resid_);
+    if (gain <= kStepTolerance * std::fabs(f) || (lambda == 1.0 && gain <= kSmallGain * std::fabs(f))) break;
+  }
+  double l = 0, b = 0;
+  Displace(total, 1.0, level, trend, season, l, b, trial_season_);
+  level = l;
+  trend = b;
+  season.swap(trial_season_);
+  return f;
+}
+
+void StateSolver::RowsFromImpulse() {
+  const size_t len = y_.size(), m = season_work_.size(), pp = static_cast<size_t>(pp_);
+  const size_t o = spec_.has_trend() ? 2 : 1;
+  // The first seasonal state's column reversed and followed by m zeros: row t's seasonal part
+  // C[t - j] (0 for j > t) is then the contiguous run reversed[len - 1 - t + j], j < m.
+  double* reversed = columns_.data();
+  for (size_t t = 0; t < len; ++t) reversed[len - 1 - t] = impulse_[4 * t + 2];
+  std::fill(reversed + len, reversed + len + m, 0.0);
+  for (size_t t = 0; t < len; ++t) {
+    const double* src = impulse_.data() + 4 * t;
+    const double* run = reversed + (len - 1 - t);
+    double* dst = jacobian_.data() + t * pp;
+    dst[0] = src[0];
+    if (o == 2) dst[1] = src[1];
+    // Free seasonal coordinate j moves state j by +1 and state m - 1 by -1.
+    const double last = run[m - 1];
+    for (size_t j = 0; j + 1 < m; ++j) dst[o + j] = run[j] - last;
+    for (size_t i = o + m - 1; i < pp; ++i) dst[i] = 0.0;
+  }
+}
+
+double StateSolver::SolveShifted(const model::Params& params, double& level, double& trend,
+                                 std::vector<double>& season, int* passes) {
+  ++*passes;
+  if (!Tangents(params, level, trend, season, /*mu_rows=*/false, /*impulse=*/true)) return kInf;
+  const size_t n = y_.size(), m = season.size(), mw = lag_width_;
+  const bool has_trend = spec_.has_trend();
+  const size_t o = has_trend ? 2 : 1;
+  const size_t stride = n + mw + 4;
+  // Columns of d residual / d raw state: level, trend, first seasonal state (C); residuals r.
+  double* col_l = columns_.data();
+  double* col_b = col_l + stride;
+  double* col_c = col_b + stride;
+  double* col_r = col_c + stride;
+  for (size_t t = 0; t < n; ++t) {
+    col_l[t] = impulse_[4 * t];
+    col_b[t] = impulse_[4 * t + 1];
+    col_c[t] = impulse_[4 * t + 2];
+    col_r[t] = residuals_[t];
+  }
+  // Seasonal state j's column is C shifted down by j, so every product with it is a lag sum:
+  // lags_[a * mw + j] = sum_v C[v] X_a[v + j] for X = C, r, L (, B).
+  const double* xs[4] = {col_c, col_r, col_l, col_b};
+  LagSumsAny(col_c, xs, has_trend ? 4 : 3, n, mw, lags_.data());
+  const double* cc = lags_.data();
+  const double* rc = cc + mw;
+  const double* lc = rc + mw;
+  const double* bc = lc + mw;
+  // Raw Gram (level, trend, m seasonal states) and gradient J'r.
+  const Eigen::Index raw = static_cast<Eigen::Index>(o + m);
+  Eigen::MatrixXd g_raw(raw, raw);
+  Eigen::VectorXd v_raw(raw);
+  const Eigen::Index rows = static_cast<Eigen::Index>(n);
+  Eigen::Map<const Eigen::VectorXd> l_vec(col_l, rows), b_vec(col_b, rows), r_vec(col_r, rows);
+  g_raw(0, 0) = l_vec.squaredNorm();
+  v_raw[0] = l_vec.dot(r_vec);
+  if (has_trend) {
+    g_raw(1, 0) = g_raw(0, 1) = l_vec.dot(b_vec);
+    g_raw(1, 1) = b_vec.squaredNorm();
+    v_raw[1] = b_vec.dot(r_vec);
+  }
+  for (size_t j = 0; j < m; ++j) {
+    const Eigen::Index sj = static_cast<Eigen::Index>(o + j);
+    g_raw(sj, 0) = g_raw(0, sj) = lc[j];
+    if (has_trend) g_raw(sj, 1) = g_raw(1, sj) = bc[j];
+    v_raw[sj] = rc[j];
+  }
+  // States i <= k: sum over v < n - k of C[v] C[v + k - i], i.e. the full lag sum minus its last
+  // i terms.
+  for (size_t l = 0; l < m; ++l) {
+    double tail = 0.0;
+    for (size_t i = 0; i + l < m; ++i) {
+      if (i > 0) tail += col_c[n - l - i] * col_c[n - i];
+      const Eigen::Index si = static_cast<Eigen::Index>(o + i), sk = static_cast<Eigen::Index>(o + i + l);
+      g_raw(sk, si) = g_raw(si, sk) = cc[l] - tail;
+    }
+  }
+  // Free coordinates: the last seasonal state moves by minus the sum of the others.
+  const Eigen::Index p = p_, last = raw - 1;
+  Eigen::MatrixXd h(p, p);
+  Eigen::VectorXd g(p);
+  auto seasonal = [&](Eigen::Index i) { return i >= static_cast<Eigen::Index>(o); };
+  for (Eigen::Index i = 0; i < p; ++i) {
+    g[i] = v_raw[i] - (seasonal(i) ? v_raw[last] : 0.0);
+    for (Eigen::Index k = 0; k <= i; ++k) {
+      double v = g_raw(i, k);
+      if (seasonal(i)) v -= g_raw(last, k);
+      if (seasonal(k)) v -= g_raw(i, last);
+      if (seasonal(i) && seasonal(k)) v += g_raw(last, last);
+      h(i, k) = v;
+    }
+  }
+  h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
+  const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(g));
+  Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), static_cast<Eigen::Index>(n));
+  const double sse_start = r.squaredNorm();
+  double sse = kInf;
+  if (delta.allFinite()) {
+    // Residuals at the solution, r + J delta, with the seasonal part as shifted copies of C.
+    double* out = jd_shift_.data();
+    for (size_t t = 0; t < n; ++t) out[t] = col_r[t] + delta[0] * col_l[t] + (has_trend ? delta[1] * col_b[t] : 0.0);
+    double moved = 0.0;
+    for (size_t j = 0; j < m; ++j) {
+      const double dj = j + 1 < m ? delta[static_cast<Eigen::Index>(o + j)] : -moved;
+      moved += dj;
+      for (size_t t = j; t < n; ++t) out[t] += dj * col_c[t - j];
+    }
+    sse = Eigen::Map<const Eigen::VectorXd>(out, static_cast<Eigen::Index>(n)).squaredNorm();
+  }
+  if (sse < sse_start) {
+    double l = 0, b = 0;
+    Displace(delta, 1.0, level, trend, season, l, b, trial_season_);
+    level = l;
+    trend = b;
+    season.swap(trial_season_);
+  } else {
+    sse = sse_start;
+  }
+  if (!(sse > 0) || !std::isfinite(sse)) return kInf;
+  const double nn = n_obs_;
+  return 0.5 * nn * (std::log(2.0 * std::numbers::pi * sse / nn) + 1.0);
 }
 
 double StateSolver::Solve(const model::Params& params, double& level, double& trend,
@@ -426,28 +788,17 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   // Additive error with additive components: residuals affine in the state, so one step is the
   // exact optimum and the residuals there are r + J delta (no second pass needed).
   const Eigen::Index p = p_;
-  const size_t m = season.size();
-  const size_t o = spec_.has_trend() ? 2 : 1;
   auto move = [&](const Eigen::VectorXd& delta, double lambda, double& l, double& b, std::vector<double>& s) {
-    l = level + lambda * delta[0];
-    b = spec_.has_trend() ? trend + lambda * delta[1] : trend;
-    s = season;
-    if (estimate_season_) {
-      double moved = 0.0;
-      for (size_t j = 0; j + 1 < m; ++j) {
-        const double dj = lambda * delta[static_cast<Eigen::Index>(o + j)];
-        s[j] += dj;
-        moved += dj;
-      }
-      s[m - 1] -= moved;
-    }
+    Displace(delta, lambda, level, trend, season, l, b, s);
   };
+  if (affine_mu()) return SolveAffineMu(params, level, trend, season, passes);
+  if (affine() && shifted_) return SolveShifted(params, level, trend, season, passes);
   if (affine()) {
     ++*passes;
     if (!Tangents(params, level, trend, season)) return kInf;
     const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
-    Eigen::MatrixXd h = Gram();
+    Eigen::MatrixXd h = Gram(jacobian_);
     h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
     const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(jac.transpose() * r));
     const double sse_start = r.squaredNorm();
@@ -479,7 +830,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     if (refresh) {
-      Eigen::MatrixXd h = Gram();
+      Eigen::MatrixXd h = Gram(jacobian_);
       // A tiny ridge keeps the solve defined when a direction is (nearly) unidentified, e.g. a
       // trend and a seasonal ramp on a short history.
       const double ridge = 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);

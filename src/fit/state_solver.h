@@ -6,9 +6,18 @@
 // innovations with respect to the initial state propagated through the recursion (tangent-linear
 // pass, O(n p) for p free states) and a backtracking line search on model::EvaluateLikelihood.
 // For additive error with additive trend and season the innovations are affine in the initial
-// state, so one full step is the exact least-squares optimum; otherwise (relative errors,
-// multiplicative season) a few steps converge. The optimiser then only searches the 1-4
-// smoothing parameters.
+// state, so one full step is the exact least-squares optimum. With relative errors and additive
+// components the one-step forecasts mu are still affine in the initial state (the state update
+// is driven by y - mu as with additive errors), so after one tangent pass every Gauss-Newton step
+// and line-search trial is computed from mu = mu0 + J_mu delta without another pass over the
+// recursion. A multiplicative season needs a tangent pass per step. The optimiser then only
+// searches the 1-4 smoothing parameters.
+//
+// Additive season without gaps: the tangent recursion is then time-invariant in the frame that
+// rotates with the season, and seasonal state j is first read at step j, so its Jacobian column
+// is the first seasonal state's column shifted down by j. One tangent pass with three columns
+// (level, trend, first seasonal state) gives them all; for additive error J'J and J'r are lag
+// sums of those columns (O(n m) instead of O(n m^2)).
 //
 // Thread-safety: one solver per fit (it owns scratch space); no shared state.
 
@@ -46,6 +55,9 @@ class StateSolver {
   // True when the innovations are affine in the state (additive error, additive components):
   // Solve is then exact in one step whatever the starting state.
   bool affine() const;
+  // True when the one-step forecasts are affine in the state but the likelihood is not a sum of
+  // squares (relative error, additive components).
+  bool affine_mu() const;
 
   // REQUIRES Supports(spec); y outlives the solver. With estimate_season false the seasonal
   // states are held at their starting values (only level and trend are solved for).
@@ -68,9 +80,29 @@ class StateSolver {
   // -loglik at the given state, +infinity when infeasible.
   double Objective(const model::Params& params, double level, double trend, const std::vector<double>& season);
   // J'J of the Jacobian's p columns, lower triangle (AVX2 kernel where the CPU has it).
-  Eigen::MatrixXd Gram() const;
-  // Fills jacobian_ (rows = observations, p columns), residuals_ and grad_log_mu_.
-  bool Tangents(const model::Params& params, double level, double trend, const std::vector<double>& season);
+  Eigen::MatrixXd Gram(const AlignedVector& rows) const;
+  // Fills jacobian_ (rows = observations, p columns), residuals_ and grad_log_mu_; with mu_rows
+  // (affine_mu() forms only) instead rows of d mu / d state for every step and mu0_.
+  // With impulse (shifted_ only) the rows have 4 columns (level, trend, the first seasonal state,
+  // a zero pad) in impulse_.
+  bool Tangents(const model::Params& params, double level, double trend, const std::vector<double>& season,
+                bool mu_rows = false, bool impulse = false);
+  // Solve for affine() forms when shifted_: the Gram and J'r from lag sums of three columns.
+  double SolveShifted(const model::Params& params, double& level, double& trend, std::vector<double>& season,
+                      int* passes);
+  // jacobian_ rows (every step, p free coordinates) from the impulse columns (shifted_ only).
+  void RowsFromImpulse();
+  // Solve for affine_mu() forms: Gauss-Newton on mu = mu0 + J_mu delta after one tangent pass.
+  double SolveAffineMu(const model::Params& params, double& level, double& trend, std::vector<double>& season,
+                       int* passes);
+  // -loglik of a relative-error form from its one-step forecasts (every step); +infinity when one
+  // is outside (1e-300, 1e300) as in model::EvaluateLikelihood.
+  // Also stores 1 / mu_t and the relative residuals (0 for gaps) up to the first infeasible step.
+  double MuObjective(const double* mu, double* inv_mu, double* resid) const;
+  // (l, b, s) = the state (level, trend, season) moved by lambda * delta in the free coordinates,
+  // the last seasonal state keeping the normalisation.
+  void Displace(const Eigen::VectorXd& delta, double lambda, double level, double trend,
+                const std::vector<double>& season, double& l, double& b, std::vector<double>& s) const;
 
   model::ModelSpec spec_;
   std::span<const double> y_;
@@ -85,6 +117,14 @@ class StateSolver {
   std::vector<double> t_param_season_;                 // 4 per slot: seasonal tangents to the parameters
   std::vector<double> season_work_, trial_season_;
   mutable std::vector<double> gram_;  // pp x pp scratch of Gram()
+  // affine_mu() forms: forecasts at the start state, per step; forecasts now, trial ones, J_mu delta.
+  std::vector<double> mu0_, mu_, trial_mu_, jd_, weights_, inv_mu_, trial_inv_mu_, resid_, trial_resid_;
+  AlignedVector scaled_;              // n_obs x pp: rows of J_mu scaled by d residual / d mu
+  // Additive season estimated, no gaps: seasonal columns are shifts of one (see SolveShifted).
+  bool shifted_ = false;
+  size_t lag_width_ = 0;              // m rounded up to a multiple of 4
+  AlignedVector impulse_;             // n x 4 rows: level, trend, first seasonal state, pad
+  std::vector<double> columns_, lags_, jd_shift_;  // zero-padded columns, their lag sums, r + J delta
 };
 
 }  // namespace plimsoll::fit
