@@ -432,12 +432,12 @@ class Profile {
     const bool warm = !solver_.affine() && !best_z_.empty();
     double level = warm ? best_level_ : level0_, trend = warm ? best_trend_ : trend0_;
     season_ = warm ? best_season_ : season0_;
-    double f = solver_.Solve(full_.params(), level, trend, season_, &passes_);
+    double f = solver_.Solve(full_.params(), level, trend, season_, &passes_, coarse_);
     if (!(f < kPenalty) && warm) {
       level = level0_;
       trend = trend0_;
       season_ = season0_;
-      f = solver_.Solve(full_.params(), level, trend, season_, &passes_);
+      f = solver_.Solve(full_.params(), level, trend, season_, &passes_, coarse_);
     }
     if (!(f < kPenalty)) return kPenalty;
     if (grad != nullptr) {
@@ -478,6 +478,8 @@ class Profile {
   // Whether runs from now on are stopped when they join a known basin (runs from the start
   // points only: a probe or a finishing run starts at a known optimum on purpose).
   void set_join_check(bool on) { join_check_ = on; }
+  // Whether evaluations solve the state only roughly (see StateSolver::Solve): for a probe.
+  void set_coarse(bool on) { coarse_ = on; }
   double best_f() const { return best_f_; }
   const std::vector<double>& best_z() const { return best_z_; }
   const Params& best_params() const { return best_params_; }
@@ -513,6 +515,7 @@ class Profile {
   std::vector<KnownOptimum> known_;
   bool join_check_ = false;
   bool joined_known_ = false;
+  bool coarse_ = false;
   int passes_ = 0;
   bool time_exhausted_ = false;
   nlopt::opt* running_ = nullptr;
@@ -603,7 +606,10 @@ StopReason Search(P& problem, std::vector<std::vector<double>>& start_points, in
 // multimodal in (alpha, beta, gamma, phi), and a gradient method stops in whichever basin its
 // line searches lead to; so a short BOBYQA probe with a wide trust region follows from the best
 // point (its first 2 dim + 1 evaluations sample a neighbourhood 0.25 wide in every coordinate),
-// and when it finds better, L-BFGS finishes from there. The best point lives in `profile`.
+// and when it finds better, L-BFGS finishes from there. The probe's evaluations solve the state
+// coarsely (one Gauss-Newton step where the solve is iterative): each value is the likelihood of
+// an actual point, an upper bound of the profile, and a better basin shows by far more than the
+// bound's slack. The best point lives in `profile`.
 StopReason GradientSearch(Profile& profile, std::vector<std::vector<double>>& start_points, int probe_evaluations,
                           int budget_end, double tolerance) {
   StopReason best_stop = StopReason::kConverged;
@@ -625,8 +631,10 @@ StopReason GradientSearch(Profile& profile, std::vector<std::vector<double>>& st
     const int left = budget_end - profile.evaluations();
     if (left <= 0) return StopReason::kEvaluationBudget;
     const double before = profile.best_f();
+    profile.set_coarse(true);
     const StopReason probe = RunOnce(profile, nlopt::LN_BOBYQA, profile.best_z(), std::min(left, probe_evaluations),
                                      tolerance, kRestartStepScale[1]);
+    profile.set_coarse(false);
     if (probe == StopReason::kTimeBudget) return probe;
     if (!(profile.best_f() < before - 1e-9 * std::fabs(before))) break;
     const int rest = budget_end - profile.evaluations();

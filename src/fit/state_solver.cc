@@ -784,7 +784,7 @@ double StateSolver::SolveShifted(const model::Params& params, double& level, dou
 }
 
 double StateSolver::Solve(const model::Params& params, double& level, double& trend,
-                          std::vector<double>& season, int* passes) {
+                          std::vector<double>& season, int* passes, bool coarse) {
   // Additive error with additive components: residuals affine in the state, so one step is the
   // exact optimum and the residuals there are r + J delta (no second pass needed).
   const Eigen::Index p = p_;
@@ -824,7 +824,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   // between steps, and the line search guards the rest.
   Eigen::LDLT<Eigen::MatrixXd, Eigen::Lower> factor;
   bool refresh = true;
-  for (int step_count = 0; step_count < kMaxSteps; ++step_count) {
+  for (int step_count = 0; step_count < (coarse ? 1 : kMaxSteps); ++step_count) {
     ++*passes;
     if (!Tangents(params, level, trend, season)) break;
     const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));

@@ -66,8 +66,10 @@ class StateSolver {
   // Improves `state` (level, trend, season in chronological order, normalised) for `params` in
   // place and returns the -loglik there; +infinity when the starting state is infeasible.
   // Likelihood passes (tangent and plain) are added to *passes.
+  // With coarse, a form whose solve is iterative (multiplicative season) takes one Gauss-Newton
+  // step only: the value is then an upper bound of the profile (a probe's screening value).
   double Solve(const model::Params& params, double& level, double& trend, std::vector<double>& season_chrono,
-               int* passes);
+               int* passes, bool coarse = false);
 
   // The gradient of -loglik at (params, state) with respect to (alpha, beta, gamma, phi) with the
   // state held fixed (zero for parameters the form lacks); one pass over the history. At the
