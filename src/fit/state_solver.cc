@@ -165,6 +165,15 @@ double StateSolver::Objective(const model::Params& params, double level, double 
 
 namespace {
 
+// Splits x (normal, positive) into a mantissa in [1, 2) and a binary exponent added to
+// `exponent`: the sum of log mu_t is accumulated as a product, without a log per step.
+inline double Renormalise(double x, int64_t& exponent) {
+  uint64_t bits = std::bit_cast<uint64_t>(x);
+  exponent += static_cast<int64_t>((bits >> 52) & 0x7ff) - 1023;
+  bits = (bits & ~(uint64_t{0x7ff} << 52)) | (uint64_t{1023} << 52);
+  return std::bit_cast<double>(bits);
+}
+
 // Two doubles in one SSE2 register (GCC/Clang vector extension): the tangent columns are
 // processed in pairs, which the compiler does not do by itself at -O2 for loops of unknown
 // length over several arrays.
@@ -181,7 +190,8 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
                                                        double* __restrict tl, double* __restrict tb,
                                                        double* __restrict t_season, double* __restrict jacobian,
                                                        double* __restrict residuals,
-                                                       double* __restrict grad_log_mu, bool needs_positive) {
+                                                       double* __restrict grad_log_mu, bool needs_positive,
+                                                       double* log_mu_sum) {
   constexpr bool kAddSeason = kSeason == model::SeasonType::kAdditive;
   constexpr bool kMultSeason = kSeason == model::SeasonType::kMultiplicative;
   constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
@@ -194,6 +204,10 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
   V* __restrict vl = reinterpret_cast<V*>(tl);
   V* __restrict vb = reinterpret_cast<V*>(tb);
   V* __restrict vg = reinterpret_cast<V*>(grad_log_mu);
+  // Relative error: sum of log mu_t over the observations as a product of mantissas (four
+  // chains) and a binary exponent, as model::EvaluateLikelihood accumulates it.
+  double product[4] = {1.0, 1.0, 1.0, 1.0};
+  int64_t exponent = 0;
   for (size_t t = 0; t < y.size(); ++t) {
     const double lp = l + phi * b;
     double s = 0.0, mu = lp;
@@ -206,9 +220,11 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
       mu = lp * s;
     }
     if (!std::isfinite(mu) || (needs_positive && !(mu > 0))) return false;
+    if (kMultError && !(mu > 1e-300 && mu < 1e300)) return false;
     const double yt = y[t];
     const bool missing = std::isnan(yt);
     const double e = missing ? 0.0 : yt - mu;
+    if (kMultError && !kMuRows && !missing) product[t & 3] = Renormalise(product[t & 3] * mu, exponent);
     // d e = -d mu (0 for a gap); e~ = e (or e / s); the state updates as in the kernel.
     const double keep = missing ? 0.0 : 1.0;
     const double inv_s = kMultSeason ? 1.0 / s : 1.0;
@@ -258,6 +274,11 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
     residuals[row] = kMultError ? e / mu : e;
     ++row;
   }
+  if constexpr (kMultError && !kMuRows) {
+    double sum = static_cast<double>(exponent) * std::numbers::ln2;
+    for (double q : product) sum += std::log(q);
+    *log_mu_sum = sum;
+  }
   return true;
 }
 
@@ -271,10 +292,10 @@ __attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, 
                                                      double level, double trend, std::vector<double>& season_work,
                                                      size_t pp, double* tl, double* tb, double* t_season,
                                                      double* jacobian, double* residuals, double* grad_log_mu,
-                                                     bool needs_positive) {
+                                                     bool needs_positive, double* log_mu_sum) {
   return TangentPass<Quad, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl, tb,
                                                                  t_season, jacobian, residuals, grad_log_mu,
-                                                                 needs_positive);
+                                                                 needs_positive, log_mu_sum);
 }
 
 // The gradient of -loglik with respect to (alpha, beta, gamma, phi) with the state held fixed: one
@@ -445,25 +466,34 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
   const bool positive = spec_.needs_positive_data();
   const bool avx2 = __builtin_cpu_supports("avx2");
   double* rows = impulse ? impulse_.data() : jacobian_.data();
+  double log_mu_sum = 0.0;
   auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
     auto pass = [&]<bool kMuRows>(double* out) {
       if (avx2) {
         return TangentPassAvx2<kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
                                                                      t_level_.data(), t_trend_.data(),
                                                                      t_season_.data(), rows, out,
-                                                                     grad_log_mu_.data(), positive);
+                                                                     grad_log_mu_.data(), positive, &log_mu_sum);
       }
       return TangentPass<Pair, kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
                                                                      t_level_.data(), t_trend_.data(),
                                                                      t_season_.data(), rows, out,
-                                                                     grad_log_mu_.data(), positive);
+                                                                     grad_log_mu_.data(), positive, &log_mu_sum);
     };
     if constexpr (kMultError && kSeason != model::SeasonType::kMultiplicative) {
       if (mu_rows) return pass.template operator()<true>(mu0_.data());
     }
     return pass.template operator()<false>(residuals_.data());
   };
-  return DispatchShape(spec_, run);
+  if (!DispatchShape(spec_, run)) return false;
+  if (!mu_rows) {
+    const double sse = Eigen::Map<const Eigen::VectorXd>(residuals_.data(), n_obs_).squaredNorm();
+    const double n = n_obs_;
+    tangent_objective_ = sse > 0 && std::isfinite(sse)
+                             ? 0.5 * n * (std::log(2.0 * std::numbers::pi * sse / n) + 1.0) + log_mu_sum
+                             : kInf;
+  }
+  return true;
 }
 
 namespace {
@@ -520,15 +550,6 @@ void LagSumsAny(const double* c, const double* const* xs, int arrays, size_t n, 
   }
 }
 
-// Splits x (normal, positive) into a mantissa in [1, 2) and a binary exponent added to
-// `exponent`: the sum of log mu_t is accumulated as a product, without a log per step.
-inline double Renormalise(double x, int64_t& exponent) {
-  uint64_t bits = std::bit_cast<uint64_t>(x);
-  exponent += static_cast<int64_t>((bits >> 52) & 0x7ff) - 1023;
-  bits = (bits & ~(uint64_t{0x7ff} << 52)) | (uint64_t{1023} << 52);
-  return std::bit_cast<double>(bits);
-}
-
 }  // namespace
 
 double StateSolver::MuObjective(const double* mu, double* inv_mu, double* resid) const {
@@ -579,7 +600,7 @@ void StateSolver::Displace(const Eigen::VectorXd& delta, double lambda, double l
 }
 
 double StateSolver::SolveAffineMu(const model::Params& params, double& level, double& trend,
-                                  std::vector<double>& season, int* passes) {
+                                  std::vector<double>& season, int* passes, bool coarse) {
   if (!(level > 0)) return kInf;
   ++*passes;
   if (!Tangents(params, level, trend, season, /*mu_rows=*/true, /*impulse=*/shifted_)) return kInf;
@@ -597,7 +618,7 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
   Eigen::LDLT<Eigen::MatrixXd, Eigen::Lower> factor;
   bool refresh = true;
   const double n = n_obs_;
-  for (int step_count = 0; step_count < kMaxSteps; ++step_count) {
+  for (int step_count = 0; step_count < (coarse ? 1 : kMaxSteps); ++step_count) {
     // r_t = (y_t - mu_t) / mu_t; d r_t / d mu_t = -y_t / mu_t^2. Gradient of n/2 log S + sum log mu
     // scaled by S/n: J_mu' (r dr/dmu + (S/n) / mu).
     const double sse = Eigen::Map<const Eigen::VectorXd>(resid_.data(), len).squaredNorm();
@@ -791,7 +812,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   auto move = [&](const Eigen::VectorXd& delta, double lambda, double& l, double& b, std::vector<double>& s) {
     Displace(delta, lambda, level, trend, season, l, b, s);
   };
-  if (affine_mu()) return SolveAffineMu(params, level, trend, season, passes);
+  if (affine_mu()) return SolveAffineMu(params, level, trend, season, passes, coarse);
   if (affine() && shifted_) return SolveShifted(params, level, trend, season, passes);
   if (affine()) {
     ++*passes;
@@ -816,9 +837,14 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     const double n = n_obs_;
     return 0.5 * n * (std::log(2.0 * std::numbers::pi * sse / n) + 1.0);
   }
-  double f = Objective(params, level, trend, season);
-  ++*passes;
-  if (!std::isfinite(f)) return kInf;
+  // Infeasible starts as in Objective; the start's -loglik comes with the first tangent pass.
+  if (spec_.needs_positive_data() && !(level > 0)) return kInf;
+  if (spec_.season == model::SeasonType::kMultiplicative) {
+    for (double s : season) {
+      if (!(s > 0)) return kInf;
+    }
+  }
+  double f = kInf;
   // The Hessian J'J (O(n p^2), the dearest part) is formed at the first step and reused by the
   // later (chord) steps while full steps are accepted: near the optimum it changes little
   // between steps, and the line search guards the rest.
@@ -827,6 +853,8 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
   for (int step_count = 0; step_count < (coarse ? 1 : kMaxSteps); ++step_count) {
     ++*passes;
     if (!Tangents(params, level, trend, season)) break;
+    if (step_count == 0) f = tangent_objective_;
+    if (!std::isfinite(f)) break;
     const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     if (refresh) {

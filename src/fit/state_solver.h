@@ -66,8 +66,9 @@ class StateSolver {
   // Improves `state` (level, trend, season in chronological order, normalised) for `params` in
   // place and returns the -loglik there; +infinity when the starting state is infeasible.
   // Likelihood passes (tangent and plain) are added to *passes.
-  // With coarse, a form whose solve is iterative (multiplicative season) takes one Gauss-Newton
-  // step only: the value is then an upper bound of the profile (a probe's screening value).
+  // With coarse, a form whose solve is iterative (relative error or multiplicative season) takes
+  // one Gauss-Newton step only: the value is then an upper bound of the profile (a probe's
+  // screening value).
   double Solve(const model::Params& params, double& level, double& trend, std::vector<double>& season_chrono,
                int* passes, bool coarse = false);
 
@@ -83,7 +84,8 @@ class StateSolver {
   double Objective(const model::Params& params, double level, double trend, const std::vector<double>& season);
   // J'J of the Jacobian's p columns, lower triangle (AVX2 kernel where the CPU has it).
   Eigen::MatrixXd Gram(const AlignedVector& rows) const;
-  // Fills jacobian_ (rows = observations, p columns), residuals_ and grad_log_mu_; with mu_rows
+  // Fills jacobian_ (rows = observations, p columns), residuals_, grad_log_mu_ and
+  // tangent_objective_ (-loglik at the state, +infinity when not finite); with mu_rows
   // (affine_mu() forms only) instead rows of d mu / d state for every step and mu0_.
   // With impulse (shifted_ only) the rows have 4 columns (level, trend, the first seasonal state,
   // a zero pad) in impulse_.
@@ -96,7 +98,7 @@ class StateSolver {
   void RowsFromImpulse();
   // Solve for affine_mu() forms: Gauss-Newton on mu = mu0 + J_mu delta after one tangent pass.
   double SolveAffineMu(const model::Params& params, double& level, double& trend, std::vector<double>& season,
-                       int* passes);
+                       int* passes, bool coarse);
   // -loglik of a relative-error form from its one-step forecasts (every step); +infinity when one
   // is outside (1e-300, 1e300) as in model::EvaluateLikelihood.
   // Also stores 1 / mu_t and the relative residuals (0 for gaps) up to the first infeasible step.
@@ -119,6 +121,7 @@ class StateSolver {
   std::vector<double> t_param_season_;                 // 4 per slot: seasonal tangents to the parameters
   std::vector<double> season_work_, trial_season_;
   mutable std::vector<double> gram_;  // pp x pp scratch of Gram()
+  double tangent_objective_ = 0.0;    // -loglik at the state of the last Tangents (not mu_rows)
   // affine_mu() forms: forecasts at the start state, per step; forecasts now, trial ones, J_mu delta.
   std::vector<double> mu0_, mu_, trial_mu_, jd_, weights_, inv_mu_, trial_inv_mu_, resid_, trial_resid_;
   AlignedVector scaled_;              // n_obs x pp: rows of J_mu scaled by d residual / d mu
