@@ -41,7 +41,10 @@ class KafkaOutputSink final : public stream::OutputSink {
     for (const store::ModelRecord& m : durable.models) {
       kafka::ModelChangeEvent e;
       e.series = m.series;
+      e.step = m.step;
       e.form = m.spec;
+      e.previous_form = m.previous_spec;
+      e.reason = m.reason;
       e.aicc = m.aicc;
       e.alpha = m.alpha;
       e.beta = m.beta;

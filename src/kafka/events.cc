@@ -107,6 +107,7 @@ std::string EncodeModelChange(const ModelChangeEvent& e) {
   } else {
     w.String(e.previous_form);
   }
+  w.Field("reason", e.reason);
   NumberOrNull(w, "aicc", e.aicc);
   NumberOrNull(w, "alpha", e.alpha);
   NumberOrNull(w, "beta", e.beta);

@@ -202,7 +202,8 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_
                                             IfUsed(f.has_trend(), m.choice.params.beta),
                                             IfUsed(f.has_season(), m.choice.params.gamma),
                                             IfUsed(f.damped(), m.choice.params.phi), m.choice.initial.sigma2,
-                                            m.choice.loglik, m.choice.aicc, now_ms, m.reason});
+                                            m.choice.loglik, m.choice.aicc, now_ms, m.reason, m.step,
+                                            m.previous ? m.previous->Notation() : std::string()});
   }
   // Each series named once per commit; points refer to it by index.
   std::vector<uint32_t>& history_slot = pending.history_slot;

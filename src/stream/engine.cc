@@ -324,7 +324,7 @@ struct Engine::Impl {
     for (size_t i = 0; i < prefix; ++i) update(s.params, s.state, buffered[i]);
     const int64_t fitted_step = last_step - static_cast<int64_t>(buffered.size() - prefix);
     batch.events.push_back({id, fitted_step, EventKind::kModelChosen, ModelDetail(*choice, prefix)});
-    batch.models.push_back({id, fitted_step, *choice, "warmup"});
+    batch.models.push_back({id, fitted_step, *choice, "warmup", std::nullopt});
     for (size_t i = prefix; i < buffered.size(); ++i) {
       const int64_t step = last_step - static_cast<int64_t>(buffered.size() - 1 - i);
       const AlignedStep aligned{std::isnan(buffered[i]) ? StepKind::kGap : StepKind::kValue, step, buffered[i]};
@@ -600,10 +600,11 @@ Status Engine::InstallModel(SeriesId id, const ModelChoice& choice, std::span<co
       return Status::NumericFailure("replay of series '" + s.name + "' under " + choice.spec.Notation() +
                                     " produced a non-finite forecast");
   }
+  const model::ModelSpec previous = s.spec;  // InstallModel refuses a series still warming up
   im.Install(id, choice);
   s.state = std::move(replayed);
   im.batch.events.push_back({id, s.aligner.last_step(), EventKind::kModelChosen, ModelDetail(choice, history.size())});
-  im.batch.models.push_back({id, s.aligner.last_step(), choice, std::string(reason)});
+  im.batch.models.push_back({id, s.aligner.last_step(), choice, std::string(reason), previous});
   im.MarkDirty(id);
   return Status::Ok();
 }

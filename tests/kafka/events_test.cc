@@ -37,10 +37,16 @@ TEST_CASE("alert and model change events name their state and null what is absen
   CHECK(EncodeAlert(a) ==
         "{\"kind\":\"alert\",\"id\":\"s@9:cleared\",\"series\":\"s\",\"state\":\"cleared\",\"step\":9,"
         "\"time\":\"1970-01-01T00:00:00.000Z\",\"breaches\":3,\"window\":5,\"value\":1.5,\"expected\":2}");
-  ModelChangeEvent m{"s", 10, "ETS(A,N,N)", "", 12.5, 0.3};
+  ModelChangeEvent m{"s", 10, "ETS(A,N,N)", "", "warmup", 12.5, 0.3};
   CHECK(EncodeModelChange(m) ==
         "{\"kind\":\"model_change\",\"id\":\"s@10:form\",\"series\":\"s\",\"step\":10,\"form\":\"ETS(A,N,N)\","
-        "\"previous_form\":null,\"aicc\":12.5,\"alpha\":0.3,\"beta\":null,\"gamma\":null,\"phi\":null}");
+        "\"previous_form\":null,\"reason\":\"warmup\",\"aicc\":12.5,\"alpha\":0.3,\"beta\":null,\"gamma\":null,"
+        "\"phi\":null}");
+  ModelChangeEvent refit{"s", 400, "ETS(A,Ad,N)", "ETS(A,N,N)", "refit: alert", 30.25, 0.5, 0.1, NAN, 0.9};
+  CHECK(EncodeModelChange(refit) ==
+        "{\"kind\":\"model_change\",\"id\":\"s@400:form\",\"series\":\"s\",\"step\":400,"
+        "\"form\":\"ETS(A,Ad,N)\",\"previous_form\":\"ETS(A,N,N)\",\"reason\":\"refit: alert\",\"aicc\":30.25,"
+        "\"alpha\":0.5,\"beta\":0.1,\"gamma\":null,\"phi\":0.9}");
 }
 
 TEST_CASE("dead letters keep binary payloads intact and mark truncation", "[kafka]") {

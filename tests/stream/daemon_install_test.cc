@@ -139,7 +139,13 @@ TEST_CASE("a swapped-in model reaches the store in one checkpoint with the state
     for (const store::ModelRecord& m : recorder.batches[b].models)
       if (m.series == "s-00" && m.reason == "refit: test") model_commit = b;
   REQUIRE(model_commit < recorder.batches.size());
-  CHECK(recorder.batches[model_commit].models.back().alpha == kNewAlpha);
+  for (const store::ModelRecord& m : recorder.batches[model_commit].models) {
+    if (m.series != "s-00") continue;
+    CHECK(m.alpha == kNewAlpha);
+    CHECK(m.previous_spec == "ETS(A,N,N)");  // what the outputs say it replaced
+    CHECK(m.step > 5);
+  }
+  for (const store::ModelRecord& m : recorder.batches.front().models) CHECK(m.previous_spec.empty());
   bool state_with_model = false;
   for (size_t b = 0; b <= model_commit; ++b)
     for (const store::StateRecord& s : recorder.batches[b].states) {

@@ -41,6 +41,7 @@ struct ModelChangeEvent {
   int64_t step = 0;
   std::string_view form;
   std::string_view previous_form;  // empty: first model (null)
+  std::string_view reason;         // "warmup", "refit: <trigger>", ...
   double aicc = NAN;
   double alpha = NAN, beta = NAN, gamma = NAN, phi = NAN;  // NaN: not in the form (null)
 };

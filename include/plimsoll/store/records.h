@@ -38,6 +38,10 @@ struct ModelRecord {
   double aicc = kNoValue;
   int64_t fitted_ms = 0;
   std::string reason;  // why this model was chosen now: "warmup", "refit", "reseed", ...
+  // For outputs of a commit (Kafka model_change events); the model table keeps neither, the
+  // events table keeps every change. Read back as 0 and "".
+  int64_t step = 0;           // the series' step when the model was put in force
+  std::string previous_spec;  // the form it replaced; "" for a first model
   friend bool operator==(const ModelRecord&, const ModelRecord&) = default;
 };
 

@@ -95,6 +95,7 @@ struct ModelChange {
   int64_t step;
   ModelChoice choice;
   std::string reason;  // "warmup" or the caller's reason for InstallModel
+  std::optional<model::ModelSpec> previous;  // the form it replaced; none for a first model
 };
 
 // Everything since the last TakeBatch() that must become durable together.
