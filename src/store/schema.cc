@@ -101,6 +101,28 @@ CREATE TABLE refit_requests (
   requested_ms INTEGER NOT NULL
 );
 )sql"},
+    {4, "history written once: series-grouped log rows (format 2), compaction appends rows instead of rewriting chunks",
+     R"sql(
+ALTER TABLE history_log ADD COLUMN format INTEGER NOT NULL DEFAULT 1;
+CREATE TABLE history_rows (
+  series   INTEGER NOT NULL REFERENCES series(id),
+  seq      INTEGER NOT NULL,
+  min_step INTEGER NOT NULL,
+  max_step INTEGER NOT NULL,
+  count    INTEGER NOT NULL,
+  format   INTEGER NOT NULL,
+  points   BLOB NOT NULL,
+  PRIMARY KEY (series, seq)
+) WITHOUT ROWID;
+INSERT INTO history_rows(series, seq, min_step, max_step, count, format, points)
+  SELECT series, row_number() OVER (ORDER BY series, first_step) - 1 - (SELECT count(*) FROM history),
+         first_step, first_step + count - 1, count, 1, points
+  FROM history;
+DROP TABLE history;
+ALTER TABLE history_rows RENAME TO history;
+CREATE TABLE history_seq (next_seq INTEGER NOT NULL);
+INSERT INTO history_seq VALUES (0);
+)sql"},
 };
 
 Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }

@@ -1,6 +1,7 @@
 #include "store/schema.h"
 
 #include <catch2/catch.hpp>
+#include <cstring>
 #include <fstream>
 
 #include "store/store_test_util.h"
@@ -36,8 +37,8 @@ TEST_CASE("a new store gets every table at the latest schema version", "[store]"
   auto db = RawOpen(dir.File("store.db"));
   CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
   CHECK(Query(*db, "PRAGMA application_id") == kApplicationId);
-  for (const char* table : {"series", "model", "state", "history", "history_log", "flags", "alerts", "dead_letters",
-                            "source_positions", "events"}) {
+  for (const char* table : {"series", "model", "state", "history", "history_log", "history_seq", "flags", "alerts",
+                            "dead_letters", "source_positions", "events"}) {
     INFO(table);
     CHECK(Query(*db, std::string("SELECT count(*) FROM sqlite_schema WHERE type = 'table' AND name = '") + table +
                          "'") == 1);
@@ -102,7 +103,68 @@ TEST_CASE("a version 2 store migrates to version 3 and keeps refit requests unti
   CHECK(again->empty());
   store.reset();
   auto db = RawOpen(dir.File("store.db"));
-  CHECK(Query(*db, "PRAGMA user_version") == 3);
+  CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
+}
+
+// One format-1 history_log entry (schema 2-3): int64 series key, int64 step, float64 value.
+std::string OldLogPoint(int64_t series, int64_t step, double value) {
+  std::string out(24, '\0');
+  std::memcpy(out.data(), &series, 8);
+  std::memcpy(out.data() + 8, &step, 8);
+  std::memcpy(out.data() + 16, &value, 8);
+  return out;
+}
+
+TEST_CASE("a version 3 store's history log and chunks read back after migration, mixed with new rows", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(MigrateSchema(*db, 3).ok());
+    REQUIRE(db->Exec("INSERT INTO series(id, name, profile, created_ms) VALUES (1, 'a', 'p', 0), (2, 'b', 'p', 0)").ok());
+    // Steps 0..4 of a and 0..1 of b, interleaved, in the 24-byte layout of schema 2-3.
+    std::string blob;
+    for (int64_t step = 0; step < 5; ++step) {
+      blob += OldLogPoint(1, step, 10.0 + static_cast<double>(step));
+      if (step < 2) blob += OldLogPoint(2, step, -1.0 - static_cast<double>(step));
+    }
+    Result<Statement> insert = db->Prepare("INSERT INTO history_log(count, points) VALUES (7, ?1)");
+    REQUIRE(insert.ok());
+    REQUIRE(insert->BindBlob(1, blob).Run().ok());
+    // An older compacted chunk of a: steps -3..-1, plain float64 values.
+    const double chunk[] = {7, 8, 9};
+    Result<Statement> old_chunk =
+        db->Prepare("INSERT INTO history(series, first_step, count, points) VALUES (1, -3, 3, ?1)");
+    REQUIRE(old_chunk.ok());
+    REQUIRE(old_chunk->BindBlob(1, std::string_view(reinterpret_cast<const char*>(chunk), sizeof chunk)).Run().ok());
+  }
+  StoreOptions options = testing::TestOptions(dir);
+  options.history_chunk_points = 16;
+  auto store = testing::OpenOrDie(options);
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    CHECK(Query(*db, "PRAGMA user_version") == 4);
+    CHECK(Query(*db, "SELECT format FROM history_log") == 1);
+    CHECK(Query(*db, "SELECT count(*) FROM history WHERE series = 1 AND min_step = -3 AND max_step = -1") == 1);
+  }
+  // New rows (format 2) after the old one; step 4 of a is corrected, which must win.
+  CommitBatch batch;
+  batch.history.Add("a", 4, 14.5);
+  batch.history.Add("b", 2, -3.0);
+  batch.history.Add("a", 5, 15.0);
+  REQUIRE(store->Commit(batch).ok());
+  const std::vector<double> want_a{7, 8, 9, 10, 11, 12, 13, 14.5, 15};
+  for (int compacted = 0; compacted < 2; ++compacted) {
+    INFO("compacted " << compacted);
+    Result<HistorySlice> a = store->HistoryTail("a", 100);
+    REQUIRE(a.ok());
+    CHECK(a->first_step == -3);
+    CHECK(a->values == want_a);
+    Result<HistorySlice> b = store->HistoryTail("b", 2);
+    REQUIRE(b.ok());
+    CHECK(b->first_step == 1);
+    CHECK(b->values == std::vector<double>{-2, -3});
+    REQUIRE(store->CompactHistory().ok());
+  }
 }
 
 TEST_CASE("a failing migration step leaves the previous version intact", "[store]") {

@@ -376,13 +376,13 @@ TEST_CASE("history tail returns the last points across log and chunks, gaps as N
   check_a(30);
   check_a(73);
   check_a(500);
-  // 100 points in chunks of at most 16.
+  // 100 points in rows of at most 16 values: 35 from the first compaction (16 + 16 + 3), 64 from the second.
   CHECK(Count(dir.File("store.db"), "history WHERE series = (SELECT id FROM series WHERE name = 'a')") == 7);
   Result<HistorySlice> b = store->HistoryTail("b", 4);
   REQUIRE(b.ok());
   CHECK(b->first_step == 6);
   CHECK(b->values == std::vector<double>{-6, -7, -8, -9});
-  // More points after compaction land in the open chunk and read back with the old ones.
+  // More points after compaction land in a new row and read back with the old ones.
   CommitBatch more;
   more.history.Add("b", 10, -10);
   REQUIRE(store->Commit(more).ok());
@@ -467,6 +467,53 @@ TEST_CASE("history keeps points across long gaps and late corrections after comp
   REQUIRE(last->values.size() == 3);
   CHECK(std::isnan(last->values[0]));
   CHECK(last->values[2] == 1001.0);
+}
+
+TEST_CASE("a commit's history is logged as one run per series of consecutive steps", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch b;
+  b.series = {{"a", "p", 0}, {"b", "p", 0}};
+  // 100 steps of each series, interleaved as the engine emits them, then a repeat of a's step 99.
+  for (int64_t step = 0; step < 100; ++step) {
+    b.history.Add("a", step, static_cast<double>(step));
+    b.history.Add("b", step, -static_cast<double>(step));
+  }
+  b.history.Add("a", 99, 990.0);
+  REQUIRE(store->Commit(b).ok());
+  // Three runs (a 0..99, a 99, b 0..99): 201 values and a few header bytes each, not 24 bytes a point.
+  CHECK(Count(dir.File("store.db"), "history_log WHERE format = 2 AND count = 201") == 1);
+  CHECK(Count(dir.File("store.db"), "history_log WHERE length(points) <= 201 * 8 + 3 * 6") == 1);
+  Result<HistorySlice> a = store->HistoryTail("a", 2);
+  REQUIRE(a.ok());
+  CHECK(a->first_step == 98);
+  CHECK(a->values == std::vector<double>{98, 990});  // the later point for step 99 wins
+  Result<HistorySlice> bt = store->HistoryTail("b", 100);
+  REQUIRE(bt.ok());
+  CHECK(bt->values.size() == 100);
+  CHECK(bt->values.back() == -99);
+}
+
+TEST_CASE("a damaged history log row is reported as corruption naming the row", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch b;
+  b.series = {{"a", "p", 0}};
+  b.history.Add("a", 0, 1.0);
+  REQUIRE(store->Commit(b).ok());
+  {
+    Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(dir.File("store.db"), SQLITE_OPEN_READWRITE);
+    REQUIRE(db.ok());
+    // A run claiming 9 values with 2 bytes behind it.
+    REQUIRE((*db)->Exec("INSERT INTO history_log(seq, count, points, format) VALUES (77, 9, x'010009ffff', 2)").ok());
+  }
+  Result<HistorySlice> tail = store->HistoryTail("a", 5);
+  REQUIRE_FALSE(tail.ok());
+  CHECK(tail.status().code() == StatusCode::kCorruption);
+  CHECK(tail.status().message().find("history_log row 77") != std::string::npos);
+  Status compacted = store->CompactHistory();
+  CHECK(compacted.code() == StatusCode::kCorruption);
+  CHECK(Count(dir.File("store.db"), "history_log") == 2);  // nothing moved, nothing lost
 }
 
 TEST_CASE("commit compacts the history log once it passes the threshold", "[store]") {

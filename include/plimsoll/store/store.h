@@ -59,11 +59,13 @@ struct StoreOptions {
   // Dead-letter raw records longer than this are truncated (bytes, clamped to 16..1 MiB); the
   // original size is kept in raw_size.
   int dead_letter_max_bytes = 4096;
-  // Points per history chunk (clamped to 16..65536). Larger chunks: fewer rows, costlier rewrites.
+  // Most values in one compacted history row (clamped to 16..65536). A compaction adds each
+  // series' new points as new rows (never rewriting older ones), so rows hold what a series
+  // gained between compactions, up to this many values.
   int history_chunk_points = 512;
-  // Commit moves the history log into per-series chunks once it holds this many points
-  // (clamped to >= 1000). Higher: faster commits, longer pauses at compaction and slower
-  // history reads (a read scans the whole log).
+  // Commit moves the history log into per-series rows once it holds this many points
+  // (clamped to >= 1000). Higher: fewer, larger rows per series and less per-series overhead per
+  // point, longer pauses at compaction and slower history reads (a read scans the whole log).
   int64_t history_compact_points = 1'000'000;
   // SQLite page cache (KiB). Bigger keeps more of the state table in memory.
   int cache_kib = 64 * 1024;
@@ -133,8 +135,8 @@ class Store {
   // batch is untouched, so the caller keeps it and retries. Duplicate flags/alerts are ignored.
   Status Commit(const CommitBatch& batch);
 
-  // Moves up to `max_log_rows` oldest history-log rows (one per commit) into per-series chunks,
-  // in one transaction. Commit calls this itself past history_compact_points; exposed for tests
+  // Moves up to `max_log_rows` oldest history-log rows (one per commit) into per-series rows,
+  // in one transaction; Corruption naming the row when a log row does not parse (nothing moved). Commit calls this itself past history_compact_points; exposed for tests
   // and for an engine that prefers to compact when idle.
   Status CompactHistory(int64_t max_log_rows = INT64_MAX);
 
