@@ -119,7 +119,8 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
   // affine_mu() forms keep a row for every step (gaps included).
   jacobian_.resize((std::max(static_cast<size_t>(n_obs_) + 1, y.size())) * pp);
   if (affine_mu()) {
-    for (auto* v : {&mu0_, &mu_, &trial_mu_, &jd_, &weights_, &inv_mu_, &trial_inv_mu_, &resid_, &trial_resid_}) {
+    for (auto* v : {&mu0_, &mu_, &trial_mu_, &jd_, &weights_, &inv_mu_, &trial_inv_mu_, &resid_, &trial_resid_,
+                    &row_scale_}) {
       v->resize(y.size());
     }
     scaled_.resize(static_cast<size_t>(n_obs_) * pp);
@@ -604,14 +605,17 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
   if (!(level > 0)) return kInf;
   ++*passes;
   if (!Tangents(params, level, trend, season, /*mu_rows=*/true, /*impulse=*/shifted_)) return kInf;
-  if (shifted_) RowsFromImpulse();
+  // Without gaps the rows of J_mu are not stored: the scaled rows c_t J_mu,t (c_t = d r_t / d mu_t
+  // at the last refresh, never 0 for positive data) are built from the impulse columns, and the
+  // products with J_mu divide by c_t (see below).
+  if (shifted_) ReverseSeasonalImpulse();
   const Eigen::Index p = p_;
   const Eigen::Index len = static_cast<Eigen::Index>(y_.size());
   const size_t pp = static_cast<size_t>(pp_);
   mu_ = mu0_;
   double f = MuObjective(mu_.data(), inv_mu_.data(), resid_.data());
   if (!std::isfinite(f)) return kInf;
-  const JacobianMap jmu(jacobian_.data(), len, p, Eigen::OuterStride<>(pp_));
+  const JacobianMap jmu(shifted_ ? scaled_.data() : jacobian_.data(), len, p, Eigen::OuterStride<>(pp_));
   Eigen::Map<const Eigen::VectorXd> w(weights_.data(), len);
   Eigen::Map<Eigen::VectorXd> jd(jd_.data(), len);
   Eigen::VectorXd total = Eigen::VectorXd::Zero(p);
@@ -632,7 +636,10 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
       }
       const double inv = inv_mu_[ti], r = resid_[ti], c = -yt * inv * inv;
       weights_[ti] = c * r + scale * inv;
-      if (refresh) {
+      if (shifted_) {
+        if (refresh) row_scale_[ti] = c;
+        weights_[ti] /= row_scale_[ti];
+      } else if (refresh) {
         const double* src = jacobian_.data() + ti * pp;
         double* dst = scaled_.data() + static_cast<size_t>(row) * pp;
         for (size_t i = 0; i < pp; ++i) dst[i] = c * src[i];
@@ -640,6 +647,7 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
       ++row;
     }
     if (refresh) {
+      if (shifted_) ScaledRowsFromImpulse(row_scale_.data());
       Eigen::MatrixXd h = Gram(scaled_);
       h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
       factor.compute(h);
@@ -651,6 +659,7 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
     const double predicted = -0.5 * n / sse * g.dot(delta);
     if (!(predicted > kStepTolerance * std::fabs(f))) break;
     jd.noalias() = jmu * delta;
+    if (shifted_) jd.array() /= Eigen::Map<const Eigen::ArrayXd>(row_scale_.data(), len);
     double lambda = 1.0;
     bool accepted = false;
     double f_new = f;
@@ -681,23 +690,28 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
   return f;
 }
 
-void StateSolver::RowsFromImpulse() {
-  const size_t len = y_.size(), m = season_work_.size(), pp = static_cast<size_t>(pp_);
-  const size_t o = spec_.has_trend() ? 2 : 1;
-  // The first seasonal state's column reversed and followed by m zeros: row t's seasonal part
-  // C[t - j] (0 for j > t) is then the contiguous run reversed[len - 1 - t + j], j < m.
+void StateSolver::ReverseSeasonalImpulse() {
+  const size_t n = y_.size(), m = season_work_.size();
   double* reversed = columns_.data();
-  for (size_t t = 0; t < len; ++t) reversed[len - 1 - t] = impulse_[4 * t + 2];
-  std::fill(reversed + len, reversed + len + m, 0.0);
-  for (size_t t = 0; t < len; ++t) {
+  for (size_t t = 0; t < n; ++t) reversed[n - 1 - t] = impulse_[4 * t + 2];
+  std::fill(reversed + n, reversed + n + m, 0.0);
+}
+
+void StateSolver::ScaledRowsFromImpulse(const double* scale) {
+  const size_t n = y_.size(), m = season_work_.size(), pp = static_cast<size_t>(pp_);
+  const size_t o = spec_.has_trend() ? 2 : 1;
+  // Row t's seasonal part C[t - j] (0 for j > t) is the contiguous run reversed[n - 1 - t + j].
+  const double* reversed = columns_.data();
+  for (size_t t = 0; t < n; ++t) {
     const double* src = impulse_.data() + 4 * t;
-    const double* run = reversed + (len - 1 - t);
-    double* dst = jacobian_.data() + t * pp;
-    dst[0] = src[0];
-    if (o == 2) dst[1] = src[1];
+    const double* run = reversed + (n - 1 - t);
+    const double c = scale[t];
+    double* dst = scaled_.data() + t * pp;
+    dst[0] = c * src[0];
+    if (o == 2) dst[1] = c * src[1];
     // Free seasonal coordinate j moves state j by +1 and state m - 1 by -1.
     const double last = run[m - 1];
-    for (size_t j = 0; j + 1 < m; ++j) dst[o + j] = run[j] - last;
+    for (size_t j = 0; j + 1 < m; ++j) dst[o + j] = c * (run[j] - last);
     for (size_t i = o + m - 1; i < pp; ++i) dst[i] = 0.0;
   }
 }

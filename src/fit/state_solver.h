@@ -94,8 +94,12 @@ class StateSolver {
   // Solve for affine() forms when shifted_: the Gram and J'r from lag sums of three columns.
   double SolveShifted(const model::Params& params, double& level, double& trend, std::vector<double>& season,
                       int* passes);
-  // jacobian_ rows (every step, p free coordinates) from the impulse columns (shifted_ only).
-  void RowsFromImpulse();
+  // shifted_ only, after an impulse pass: the first seasonal state's column reversed, followed by
+  // m zeros, at the start of columns_ (row t's seasonal part is then a contiguous run).
+  void ReverseSeasonalImpulse();
+  // scaled_ rows (shifted_ only: no gaps, row t = step t): row t of J in the free coordinates
+  // times scale[t], from the impulse columns.
+  void ScaledRowsFromImpulse(const double* scale);
   // Solve for affine_mu() forms: Gauss-Newton on mu = mu0 + J_mu delta after one tangent pass.
   double SolveAffineMu(const model::Params& params, double& level, double& trend, std::vector<double>& season,
                        int* passes, bool coarse);
@@ -123,7 +127,8 @@ class StateSolver {
   mutable std::vector<double> gram_;  // pp x pp scratch of Gram()
   double tangent_objective_ = 0.0;    // -loglik at the state of the last Tangents (not mu_rows)
   // affine_mu() forms: forecasts at the start state, per step; forecasts now, trial ones, J_mu delta.
-  std::vector<double> mu0_, mu_, trial_mu_, jd_, weights_, inv_mu_, trial_inv_mu_, resid_, trial_resid_;
+  // row_scale_: d r / d mu per step at the last Gram refresh (shifted_).
+  std::vector<double> mu0_, mu_, trial_mu_, jd_, weights_, inv_mu_, trial_inv_mu_, resid_, trial_resid_, row_scale_;
   AlignedVector scaled_;              // n_obs x pp: rows of J_mu scaled by d residual / d mu
   // Additive season estimated, no gaps: seasonal columns are shifts of one (see SolveShifted).
   bool shifted_ = false;
