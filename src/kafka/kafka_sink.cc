@@ -10,6 +10,7 @@
 #include <thread>
 
 #include "kafka/log_bridge.h"
+#include "plimsoll/base/thread_name.h"
 #include "plimsoll/kafka/handles.h"
 
 namespace plimsoll::kafka {
@@ -129,6 +130,7 @@ bool KafkaSink::Impl::Produce(Event& event) {
 }
 
 void KafkaSink::Impl::Run() {
+  NameThisThread("plimsoll-sink");
   std::deque<Event> batch;
   for (;;) {
     {

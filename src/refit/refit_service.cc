@@ -17,6 +17,7 @@
 #include <unordered_map>
 
 #include "plimsoll/base/json_writer.h"
+#include "plimsoll/base/thread_name.h"
 #include "plimsoll/refit/refit.h"
 
 namespace plimsoll::refit {
@@ -321,6 +322,7 @@ class Service final : public stream::RefitService {
 
   // Worker thread: reads the snapshot (refits) and fits it.
   void Run(Job& job) {
+    NameThisThread("plimsoll-refit");  // the pool's threads are Asio's: one syscall per fit
     const int64_t start = clock_->MonotonicNanos();
     Status read = job.warmup ? Status::Ok() : ReadSnapshot(job);
     if (read.ok()) job.choice = chooser_(job.history, job.rules, job.additive_only);

@@ -5,6 +5,8 @@
 #include <algorithm>
 #include <chrono>
 
+#include "plimsoll/base/thread_name.h"
+
 namespace plimsoll::stream {
 
 CommitWriter::CommitWriter(std::unique_ptr<store::Store> store, Clock* clock)
@@ -61,6 +63,7 @@ store::StoreCounters CommitWriter::StoreCounters() const {
 }
 
 void CommitWriter::Loop() {
+  NameThisThread("plimsoll-commit");
   int failures_in_row = 0;
   int64_t next_log_ns = 0;
   for (;;) {

@@ -6,6 +6,8 @@
 //     same records. Fitting is kept out of the measurement: forms are fixed (one form), warm-up is
 //     20 points, and the clock starts at the first durable commit past a warm-up prefix of 30 steps
 //     per series; it stops when the positions of all N records are durable: pipeline_records_per_s.
+//     Steps 1 and 2 alternate over 3 rounds (1 with --quick); the figures are medians over rounds,
+//     pipeline_ratio the median of the per-round ratios.
 //  3. Latency: a producer offers records at a fixed 50k records/s (record time = produce wall time,
 //     ms) to a second topic the daemon also reads; each flag's record time is compared with the wall
 //     time its durable batch reaches the daemon's output sink: latency_p50_ms, latency_p99_ms.
@@ -160,15 +162,87 @@ double Percentile(std::vector<double> v, double q) {
   return v[i];
 }
 
+// One daemon read of the throughput topic from the beginning (fresh group and SQLite file); with
+// `latency_seconds` > 0, also the latency phase on `latency_topic` afterwards.
+struct DaemonRound {
+  double records_per_s = 0;
+  int64_t measured_records = 0;
+  uint64_t fits = 0, flags = 0;
+  int64_t offered = 0;
+  std::vector<double> latencies;
+};
+
+Result<DaemonRound> RunDaemonRound(const std::string& bootstrap, const std::string& topic,
+                                   const std::string& latency_topic, int round, int64_t records,
+                                   int64_t warm_records, int series, double latency_seconds) {
+  constexpr int kOfferedRate = 50'000;
+  // The embedded broker answers a fetch that finds no data only after fetch.wait.max.ms
+  // (librdkafka's default 500 ms), which would dominate the latency figure; 10 ms keeps it small.
+  constexpr int kFetchWaitMs = 10;
+  const fs::path dir =
+      fs::temp_directory_path() / ("plimsoll-pipeline-bench-" + std::to_string(getpid()) + "-" + std::to_string(round));
+  fs::remove_all(dir);
+  fs::create_directories(dir);
+  const std::string topics = latency_seconds > 0 ? "\"" + topic + "\", \"" + latency_topic + "\"" : "\"" + topic + "\"";
+  const std::string toml =
+      "[source]\nkind = \"kafka\"\n[source.kafka]\ntopics = [" + topics + "]\ngroup = \"bench-pipeline-" +
+      std::to_string(round) + "\"\n[source.kafka.properties]\n\"bootstrap.servers\" = \"" + bootstrap +
+      "\"\n\"session.timeout.ms\" = 6000\n\"heartbeat.interval.ms\" = 1000\n"
+      "\"fetch.wait.max.ms\" = " + std::to_string(kFetchWaitMs) + "\n"
+      "[sink]\nflags_topic = \"bench.flags\"\nalerts_topic = \"bench.alerts\"\nmodels_topic = \"bench.models\"\n"
+      "[store]\npath = \"" + (dir / "bench.db").string() + "\"\ncommit_ms = 100\n"
+      "[[profile]]\nmatch = \"*\"\nwarmup = 20\nhistory = 200\nband = 0.9\nforms = [\"ANN\"]\n";
+  auto config = stream::ParseConfig(toml, "pipeline bench");
+  if (!config.ok()) return config.status();
+  auto daemon = cli::OpenDaemon(*config, SystemClock());
+  if (!daemon.ok()) return daemon.status();
+  auto opened = cli::OpenSource(*config, **daemon);
+  if (!opened.ok()) return opened.status();
+  TimingSink timing(opened->sink.get(), "kafka:" + topic, warm_records, records);
+  stream::RecordDecoder decoder(config->source.decode);
+  std::atomic<bool> stop{false};
+  Status run;
+  std::thread owner([&] { run = (*daemon)->Run(*opened->source, decoder, stop, &timing); });
+
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(300);
+  while (!timing.Done() && std::chrono::steady_clock::now() < deadline)
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  const bool done = timing.Done();
+
+  DaemonRound out;
+  Status offer;
+  if (done && latency_seconds > 0) {
+    timing.StartLatency(WallMs());
+    offer = OfferAtRate(bootstrap, latency_topic, series, kOfferedRate, latency_seconds, &out.offered);
+    std::this_thread::sleep_for(std::chrono::milliseconds(1000));  // the last commits
+  }
+  stop.store(true);
+  owner.join();
+  out.fits = (*daemon)->engine().counters().fits;
+  out.flags = (*daemon)->engine().counters().flags;
+  opened->source.reset();
+  opened->sink.reset();
+  daemon->reset();
+  fs::remove_all(dir);
+  if (!done) return Status::Unavailable("the pipeline did not make all records durable within 300 s");
+  if (!run.ok()) return run;
+  if (!offer.ok()) return offer;
+  out.records_per_s = timing.Rate();
+  out.measured_records = timing.MeasuredRecords();
+  out.latencies = timing.Latencies();
+  return out;
+}
+
+double Median(std::vector<double> v) { return Percentile(std::move(v), 0.5); }
+
 BenchReport RunPipelineBench(const BenchArgs& args) {
   const int64_t records = args.quick ? 50'000 : 1'000'000;
   const int series = args.quick ? 100 : 1000;
   const int64_t warm_records = 30LL * series;
   const double latency_seconds = args.quick ? 2.0 : 6.0;
-  constexpr int kOfferedRate = 50'000;
-  // The embedded broker answers a fetch that finds no data only after fetch.wait.max.ms
-  // (librdkafka's default 500 ms), which would dominate the latency figure; 10 ms keeps it small.
-  constexpr int kFetchWaitMs = 10;
+  // Plain consume and pipeline alternate; the ratio is taken per round and its median reported
+  // (on a shared 2-core machine one plain-consume figure alone swung 2x between runs).
+  const int rounds = args.quick ? 1 : 3;
   const int partitions = 4;
   const std::string topic = "bench.pipeline";
   const std::string latency_topic = "bench.latency";
@@ -190,81 +264,57 @@ BenchReport RunPipelineBench(const BenchArgs& args) {
 
   auto produced = ProduceJsonRecords(bootstrap, topic, records, series);
   if (!produced.ok()) return fail(produced.status());
-  auto consumed = MeasurePlainConsume(bootstrap, topic, partitions, records);
-  if (!consumed.ok()) return fail(consumed.status());
-
-  const fs::path dir = fs::temp_directory_path() / ("plimsoll-pipeline-bench-" + std::to_string(getpid()));
-  fs::remove_all(dir);
-  fs::create_directories(dir);
-  const std::string toml =
-      "[source]\nkind = \"kafka\"\n[source.kafka]\ntopics = [\"" + topic + "\", \"" + latency_topic +
-      "\"]\ngroup = \"bench-pipeline\"\n[source.kafka.properties]\n\"bootstrap.servers\" = \"" + bootstrap +
-      "\"\n\"session.timeout.ms\" = 6000\n\"heartbeat.interval.ms\" = 1000\n"
-      "\"fetch.wait.max.ms\" = " + std::to_string(kFetchWaitMs) + "\n"
-      "[sink]\nflags_topic = \"bench.flags\"\nalerts_topic = \"bench.alerts\"\nmodels_topic = \"bench.models\"\n"
-      "[store]\npath = \"" + (dir / "bench.db").string() + "\"\ncommit_ms = 100\n"
-      "[[profile]]\nmatch = \"*\"\nwarmup = 20\nhistory = 200\nband = 0.9\nforms = [\"ANN\"]\n";
-  auto config = stream::ParseConfig(toml, "pipeline bench");
-  if (!config.ok()) return fail(config.status());
-  auto daemon = cli::OpenDaemon(*config, SystemClock());
-  if (!daemon.ok()) return fail(daemon.status());
-  auto opened = cli::OpenSource(*config, **daemon);
-  if (!opened.ok()) return fail(opened.status());
-  TimingSink timing(opened->sink.get(), "kafka:" + topic, warm_records, records);
-  stream::RecordDecoder decoder(config->source.decode);
-  std::atomic<bool> stop{false};
-  Status run;
-  std::thread owner([&] { run = (*daemon)->Run(*opened->source, decoder, stop, &timing); });
-
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(300);
-  while (!timing.Done() && std::chrono::steady_clock::now() < deadline)
-    std::this_thread::sleep_for(std::chrono::milliseconds(20));
-  const bool done = timing.Done();
-
-  int64_t offered = 0;
-  Status offer;
-  if (done) {
-    const int64_t since = WallMs();
-    timing.StartLatency(since);
-    offer = OfferAtRate(bootstrap, latency_topic, series, kOfferedRate, latency_seconds, &offered);
-    std::this_thread::sleep_for(std::chrono::milliseconds(1000));  // the last commits
+  std::vector<double> consume_rates, pipeline_rates, ratios;
+  DaemonRound last;
+  for (int round = 0; round < rounds; ++round) {
+    auto consumed = MeasurePlainConsume(bootstrap, topic, partitions, records);
+    if (!consumed.ok()) return fail(consumed.status());
+    auto piped = RunDaemonRound(bootstrap, topic, latency_topic, round, records, warm_records, series,
+                                round + 1 == rounds ? latency_seconds : 0.0);
+    if (!piped.ok()) return fail(piped.status());
+    consume_rates.push_back(consumed->records_per_s);
+    pipeline_rates.push_back(piped->records_per_s);
+    ratios.push_back(piped->records_per_s / consumed->records_per_s);
+    last = std::move(*piped);
   }
-  stop.store(true);
-  owner.join();
-  const uint64_t fits = (*daemon)->engine().counters().fits;
-  const uint64_t flags = (*daemon)->engine().counters().flags;
-  opened->source.reset();
-  opened->sink.reset();
-  daemon->reset();
-  fs::remove_all(dir);
   spdlog::set_level(level);
-  if (!done) return fail(Status::Unavailable("the pipeline did not make all records durable within 300 s"));
-  if (!run.ok()) return fail(run);
-  if (!offer.ok()) return fail(offer);
 
-  const std::vector<double> latencies = timing.Latencies();
+  const auto join = [](const std::vector<double>& v) {
+    std::string out;
+    for (double x : v) {
+      if (!out.empty()) out += ' ';
+      out += std::to_string(x);
+    }
+    return out;
+  };
   report.Add("records", records);
   report.Add("series", static_cast<int64_t>(series));
   report.Add("partitions", static_cast<int64_t>(partitions));
-  report.Add("consume_records_per_s", consumed->records_per_s);
-  report.Add("pipeline_records_per_s", timing.Rate());
-  report.Add("pipeline_ratio", timing.Rate() / consumed->records_per_s);
-  report.Add("pipeline_measured_records", timing.MeasuredRecords());
-  report.Add("fits", static_cast<int64_t>(fits));
-  report.Add("flags", static_cast<int64_t>(flags));
-  report.Add("latency_offered_records_per_s", static_cast<int64_t>(kOfferedRate));
-  report.Add("latency_offered_records", offered);
-  report.Add("latency_flags", static_cast<int64_t>(latencies.size()));
-  report.Add("latency_p50_ms", Percentile(latencies, 0.50));
-  report.Add("latency_p99_ms", Percentile(latencies, 0.99));
+  report.Add("rounds", static_cast<int64_t>(rounds));
+  report.Add("consume_records_per_s", Median(consume_rates));
+  report.Add("pipeline_records_per_s", Median(pipeline_rates));
+  report.Add("pipeline_ratio", Median(ratios));
+  report.Add("consume_records_per_s_by_round", join(consume_rates));
+  report.Add("pipeline_records_per_s_by_round", join(pipeline_rates));
+  report.Add("pipeline_ratio_by_round", join(ratios));
+  report.Add("pipeline_measured_records", last.measured_records);
+  report.Add("fits", static_cast<int64_t>(last.fits));
+  report.Add("flags", static_cast<int64_t>(last.flags));
+  report.Add("latency_offered_records_per_s", static_cast<int64_t>(50'000));
+  report.Add("latency_offered_records", last.offered);
+  report.Add("latency_flags", static_cast<int64_t>(last.latencies.size()));
+  report.Add("latency_p50_ms", Percentile(last.latencies, 0.50));
+  report.Add("latency_p99_ms", Percentile(last.latencies, 0.99));
   report.Add("commit_ms", static_cast<int64_t>(100));
-  report.Add("fetch_wait_max_ms", static_cast<int64_t>(kFetchWaitMs));
-  report.notes.push_back("embedded broker (in-process mock cluster over loopback); records produced before both reads");
+  report.Add("fetch_wait_max_ms", static_cast<int64_t>(10));
+  report.notes.push_back("embedded broker (in-process mock cluster over loopback); records produced once, before "
+                         "all reads; each round reads them with a plain consumer, then with the daemon (fresh "
+                         "group and SQLite file); figures are medians over rounds, ratio per round");
   report.notes.push_back("pipeline: KafkaSource + decode + update + flag + SQLite group commit (temp file, commit_ms "
                          "100) + KafkaSink; one fixed form (ANN), warm-up 20; timed from the first durable commit "
                          "past 30 steps per series (fits done) to all positions durable");
-  report.notes.push_back("latency: record time = produce wall time (ms); measured when the flag's batch is durable "
-                         "(OutputSink); band 0.9 so about 10% of records are flagged");
+  report.notes.push_back("latency (last round): record time = produce wall time (ms); measured when the flag's batch "
+                         "is durable (OutputSink); band 0.9 so about 10% of records are flagged");
   return report;
 }
 
