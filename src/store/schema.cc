@@ -123,6 +123,23 @@ ALTER TABLE history_rows RENAME TO history;
 CREATE TABLE history_seq (next_seq INTEGER NOT NULL);
 INSERT INTO history_seq VALUES (0);
 )sql"},
+    {5, "history rows keyed (series, max_step, seq): a history read finds the rows of its window by range",
+     R"sql(
+CREATE TABLE history_by_step (
+  series   INTEGER NOT NULL REFERENCES series(id),
+  max_step INTEGER NOT NULL,
+  seq      INTEGER NOT NULL,
+  min_step INTEGER NOT NULL,
+  count    INTEGER NOT NULL,
+  format   INTEGER NOT NULL,
+  points   BLOB NOT NULL,
+  PRIMARY KEY (series, max_step, seq)
+) WITHOUT ROWID;
+INSERT INTO history_by_step(series, max_step, seq, min_step, count, format, points)
+  SELECT series, max_step, seq, min_step, count, format, points FROM history;
+DROP TABLE history;
+ALTER TABLE history_by_step RENAME TO history;
+)sql"},
 };
 
 Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }

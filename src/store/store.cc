@@ -839,31 +839,33 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
                            });
     }));
   }
-  // Compacted rows of the series that start no later than `through_step`: their step ranges
-  // first (no blobs), then the blobs of the rows the window needs, applied in seq order.
+  // Compacted rows are keyed (series, max_step, seq), so the rows a window needs are found by
+  // range on max_step without reading the series' older rows; blobs are read only for them.
   struct Range {
     int64_t seq, min_step, max_step;
   };
-  std::vector<Range> ranges;
-  {
+  auto ranges = [&](const char* where, int64_t a, int64_t b) -> Result<std::vector<Range>> {
     Result<Statement> rows =
-        db_->Prepare("SELECT seq, min_step, max_step FROM history WHERE series = ?1 AND min_step <= ?2 ORDER BY seq");
+        db_->Prepare(std::string("SELECT seq, min_step, max_step FROM history WHERE series = ?1 AND ") + where);
     if (!rows.ok()) return rows.status();
-    rows->Bind(1, *id).Bind(2, through_step);
+    rows->Bind(1, *id).Bind(2, a).Bind(3, b);
+    std::vector<Range> out;
     PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
-      ranges.push_back({row.Int(0), row.Int(1), row.Int(2)});
+      out.push_back({row.Int(0), row.Int(1), row.Int(2)});
       return Status::Ok();
     }));
-  }
-  Result<Statement> blob = db_->Prepare("SELECT format, min_step, points FROM history WHERE series = ?1 AND seq = ?2");
+    return out;
+  };
+  Result<Statement> blob = db_->Prepare(
+      "SELECT format, points FROM history WHERE series = ?1 AND max_step = ?2 AND seq = ?3");
   if (!blob.ok()) return blob.status();
   // Calls visit(step, value) for every point of one row.
   auto read_row = [&](const Range& r, auto visit) -> Status {
-    blob->Bind(1, *id).Bind(2, r.seq);
+    blob->Bind(1, *id).Bind(2, r.max_step).Bind(3, r.seq);
     Result<bool> found = blob->Step();
     Status status = found.ok() ? Status::Ok() : found.status();
     if (status.ok() && *found) {
-      status = ForEachHistoryRun(*id, r.seq, blob->Int(0), blob->Int(1), blob->BlobView(2),
+      status = ForEachHistoryRun(*id, r.seq, blob->Int(0), r.min_step, blob->BlobView(1),
                                  [&](int64_t first, const char* values, size_t count) {
                                    for (size_t i = 0; i < count; ++i)
                                      visit(first + static_cast<int64_t>(i), ValueAt(values, i));
@@ -872,30 +874,50 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
     blob->Reset();
     return status;
   };
-  // The newest stored step no later than through_step: a row's max_step is a stored point; a row
-  // reaching past through_step is read to find its last point before it.
+  // The newest stored step no later than through_step: the largest max_step up to it (a row's
+  // max_step is a stored point), or a point inside a row that reaches past it.
   int64_t last = INT64_MIN, earliest = INT64_MAX;
   for (const auto& point : logged) last = std::max(last, point.first), earliest = std::min(earliest, point.first);
-  for (const Range& r : ranges) {
-    earliest = std::min(earliest, r.min_step);
-    if (r.max_step <= through_step) {
-      last = std::max(last, r.max_step);
-    } else {
-      PLIMSOLL_RETURN_IF_ERROR(read_row(r, [&](int64_t step, double) {
-        if (step <= through_step) last = std::max(last, step);
-      }));
-    }
+  Result<std::vector<Range>> straddling = ranges("max_step > ?2 AND min_step <= ?3", through_step, through_step);
+  if (!straddling.ok()) return straddling.status();
+  for (const Range& r : *straddling) {
+    PLIMSOLL_RETURN_IF_ERROR(read_row(r, [&](int64_t step, double) {
+      if (step <= through_step) last = std::max(last, step);
+    }));
+  }
+  {
+    Result<Statement> newest = db_->Prepare("SELECT max(max_step) FROM history WHERE series = ?1 AND max_step <= ?2");
+    if (!newest.ok()) return newest.status();
+    newest->Bind(1, *id).Bind(2, through_step);
+    Result<bool> row = newest->Step();
+    if (!row.ok()) return row.status();
+    if (*row && !newest->IsNull(0)) last = std::max(last, newest->Int(0));
+    newest->Reset();
   }
   if (last == INT64_MIN) return slice;  // no history at all
-  const int64_t start = std::max(last - static_cast<int64_t>(n) + 1, earliest);
+  const int64_t window_start = last - static_cast<int64_t>(n) + 1;
+  Result<std::vector<Range>> window = ranges("max_step >= ?2 AND min_step <= ?3", window_start, last);
+  if (!window.ok()) return window.status();
+  {
+    // Rows wholly before the window only tell whether the series' history starts before it.
+    Result<Statement> older =
+        db_->Prepare("SELECT EXISTS (SELECT 1 FROM history WHERE series = ?1 AND max_step < ?2)");
+    if (!older.ok()) return older.status();
+    older->Bind(1, *id).Bind(2, window_start);
+    Result<bool> row = older->Step();
+    if (!row.ok()) return row.status();
+    if (*row && older->Int(0) != 0) earliest = std::min(earliest, window_start);
+    older->Reset();
+  }
+  for (const Range& r : *window) earliest = std::min(earliest, r.min_step);
+  const int64_t start = std::max(window_start, earliest);
   slice.first_step = start;
   slice.values.assign(static_cast<size_t>(last - start + 1), kNoValue);
   auto place = [&](int64_t step, double value) {
     if (step >= start && step <= last) slice.values[static_cast<size_t>(step - start)] = value;
   };
-  for (const Range& r : ranges) {  // seq order: a later row's point for the same step wins
-    if (r.max_step >= start && r.min_step <= last) PLIMSOLL_RETURN_IF_ERROR(read_row(r, place));
-  }
+  std::sort(window->begin(), window->end(), [](const Range& a, const Range& b) { return a.seq < b.seq; });
+  for (const Range& r : *window) PLIMSOLL_RETURN_IF_ERROR(read_row(r, place));  // a later row wins
   for (const auto& [step, value] : logged) place(step, value);
   return slice;
 }

@@ -142,7 +142,7 @@ TEST_CASE("a version 3 store's history log and chunks read back after migration,
   auto store = testing::OpenOrDie(options);
   {
     auto db = RawOpen(dir.File("store.db"));
-    CHECK(Query(*db, "PRAGMA user_version") == 4);
+    CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
     CHECK(Query(*db, "SELECT format FROM history_log") == 1);
     CHECK(Query(*db, "SELECT count(*) FROM history WHERE series = 1 AND min_step = -3 AND max_step = -1") == 1);
   }
@@ -165,6 +165,48 @@ TEST_CASE("a version 3 store's history log and chunks read back after migration,
     CHECK(b->values == std::vector<double>{-2, -3});
     REQUIRE(store->CompactHistory().ok());
   }
+}
+
+TEST_CASE("a version 4 store's history rows read back after the move to step-keyed rows", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(MigrateSchema(*db, 4).ok());
+    REQUIRE(db->Exec("INSERT INTO series(id, name, profile, created_ms) VALUES (1, 'a', 'p', 0)").ok());
+    // Two rows of a: steps 10..11 (seq 0), then a later row correcting step 11 and adding 12 (seq 1).
+    // Runs: zigzag varint first step, varint count, float64 values.
+    auto row = [](uint8_t zigzag_first, std::vector<double> values) {
+      std::string blob{static_cast<char>(zigzag_first), static_cast<char>(values.size())};
+      blob.append(reinterpret_cast<const char*>(values.data()), values.size() * sizeof(double));
+      return blob;
+    };
+    Result<Statement> insert = db->Prepare(
+        "INSERT INTO history(series, seq, min_step, max_step, count, format, points) VALUES (1, ?1, ?2, ?3, 2, 2, ?4)");
+    REQUIRE(insert.ok());
+    REQUIRE(insert->Bind(1, int64_t{0}).Bind(2, int64_t{10}).Bind(3, int64_t{11}).BindBlob(4, row(20, {1, 2})).Run().ok());
+    insert->Reset();
+    REQUIRE(insert->Bind(1, int64_t{1}).Bind(2, int64_t{11}).Bind(3, int64_t{12}).BindBlob(4, row(22, {5, 3})).Run().ok());
+    REQUIRE(db->Exec("UPDATE history_seq SET next_seq = 2").ok());
+  }
+  auto store = testing::OpenOrDie(testing::TestOptions(dir));
+  Result<HistorySlice> a = store->HistoryTail("a", 10);
+  REQUIRE(a.ok());
+  CHECK(a->first_step == 10);
+  CHECK(a->values == std::vector<double>{1, 5, 3});
+  a = store->HistoryTail("a", 10, 11);  // through an earlier step: the later row's 11 still wins
+  REQUIRE(a.ok());
+  CHECK(a->values == std::vector<double>{1, 5});
+  // Compaction after the migration continues the seq.
+  CommitBatch batch;
+  batch.history.Add("a", 12, 4);
+  REQUIRE(store->Commit(batch).ok());
+  REQUIRE(store->CompactHistory().ok());
+  a = store->HistoryTail("a", 2);
+  REQUIRE(a.ok());
+  CHECK(a->values == std::vector<double>{5, 4});
+  store.reset();
+  auto db = RawOpen(dir.File("store.db"));
+  CHECK(Query(*db, "SELECT min(seq) FROM history WHERE max_step = 12 AND count = 1") == 2);
 }
 
 TEST_CASE("a failing migration step leaves the previous version intact", "[store]") {
