@@ -139,7 +139,7 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
     jd_shift_.resize(y.size());
   }
   residuals_.resize(static_cast<size_t>(n_obs_));
-  for (auto* v : {&grad_log_mu_, &t_level_, &t_trend_}) v->resize(pp);
+  for (auto* v : {&grad_log_mu_, &jr_, &t_level_, &t_trend_}) v->resize(pp);
   t_season_.resize(spec.has_season() ? pp * static_cast<size_t>(spec.period) : 0);
 }
 
@@ -183,7 +183,8 @@ typedef double Pair __attribute__((vector_size(16), may_alias));
 // The tangent-linear pass for one shape, all columns of a step fused in one loop. Columns are
 // padded to an even count (the pad columns start at zero and stay zero).
 // With kMuRows (relative error, additive components) the rows are d mu / d state for every step
-// (gaps included) and `residuals` receives mu; grad_log_mu is left alone.
+// (gaps included) and `residuals` receives mu; grad_log_mu is left alone. Otherwise `jr` (pp,
+// zeroed by the caller) receives J'r, summed over the kept rows in order as the rows are made.
 template <typename V, bool kTrend, model::SeasonType kSeason, bool kMultError, bool kMuRows = false>
 __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y, const model::Params& params,
                                                        double phi, double level, double trend,
@@ -191,8 +192,8 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
                                                        double* __restrict tl, double* __restrict tb,
                                                        double* __restrict t_season, double* __restrict jacobian,
                                                        double* __restrict residuals,
-                                                       double* __restrict grad_log_mu, bool needs_positive,
-                                                       double* log_mu_sum) {
+                                                       double* __restrict grad_log_mu, double* __restrict jr,
+                                                       bool needs_positive, double* log_mu_sum) {
   constexpr bool kAddSeason = kSeason == model::SeasonType::kAdditive;
   constexpr bool kMultSeason = kSeason == model::SeasonType::kMultiplicative;
   constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
@@ -205,6 +206,7 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
   V* __restrict vl = reinterpret_cast<V*>(tl);
   V* __restrict vb = reinterpret_cast<V*>(tb);
   V* __restrict vg = reinterpret_cast<V*>(grad_log_mu);
+  V* __restrict vjr = reinterpret_cast<V*>(jr);
   // Relative error: sum of log mu_t over the observations as a product of mantissas (four
   // chains) and a binary exponent, as model::EvaluateLikelihood accumulates it.
   double product[4] = {1.0, 1.0, 1.0, 1.0};
@@ -272,7 +274,9 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
       continue;
     }
     if (missing) continue;
-    residuals[row] = kMultError ? e / mu : e;
+    const double r = kMultError ? e / mu : e;
+    residuals[row] = r;
+    for (size_t i = 0; i < pairs; ++i) vjr[i] += r * vj[i];
     ++row;
   }
   if constexpr (kMultError && !kMuRows) {
@@ -293,9 +297,9 @@ __attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, 
                                                      double level, double trend, std::vector<double>& season_work,
                                                      size_t pp, double* tl, double* tb, double* t_season,
                                                      double* jacobian, double* residuals, double* grad_log_mu,
-                                                     bool needs_positive, double* log_mu_sum) {
+                                                     double* jr, bool needs_positive, double* log_mu_sum) {
   return TangentPass<Quad, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl, tb,
-                                                                 t_season, jacobian, residuals, grad_log_mu,
+                                                                 t_season, jacobian, residuals, grad_log_mu, jr,
                                                                  needs_positive, log_mu_sum);
 }
 
@@ -449,6 +453,7 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
   std::fill(t_trend_.begin(), t_trend_.end(), 0.0);
   std::fill(t_season_.begin(), t_season_.end(), 0.0);
   std::fill(grad_log_mu_.begin(), grad_log_mu_.end(), 0.0);
+  std::fill(jr_.begin(), jr_.end(), 0.0);
   t_level_[0] = 1.0;
   if (has_trend) t_trend_[1] = 1.0;
   if (impulse) {
@@ -474,12 +479,14 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
         return TangentPassAvx2<kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
                                                                      t_level_.data(), t_trend_.data(),
                                                                      t_season_.data(), rows, out,
-                                                                     grad_log_mu_.data(), positive, &log_mu_sum);
+                                                                     grad_log_mu_.data(), jr_.data(), positive,
+                                                                     &log_mu_sum);
       }
       return TangentPass<Pair, kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
                                                                      t_level_.data(), t_trend_.data(),
                                                                      t_season_.data(), rows, out,
-                                                                     grad_log_mu_.data(), positive, &log_mu_sum);
+                                                                     grad_log_mu_.data(), jr_.data(), positive,
+                                                                     &log_mu_sum);
     };
     if constexpr (kMultError && kSeason != model::SeasonType::kMultiplicative) {
       if (mu_rows) return pass.template operator()<true>(mu0_.data());
@@ -835,7 +842,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     Eigen::MatrixXd h = Gram(jacobian_);
     h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
-    const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(jac.transpose() * r));
+    const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(JacobianTimesResiduals()));
     const double sse_start = r.squaredNorm();
     double sse = delta.allFinite() ? (r + jac * delta).squaredNorm() : kInf;
     if (sse < sse_start) {
@@ -869,7 +876,6 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     if (!Tangents(params, level, trend, season)) break;
     if (step_count == 0) f = tangent_objective_;
     if (!std::isfinite(f)) break;
-    const JacobianMap jac(jacobian_.data(), n_obs_, p, Eigen::OuterStride<>(pp_));
     Eigen::Map<const Eigen::VectorXd> r(residuals_.data(), n_obs_);
     if (refresh) {
       Eigen::MatrixXd h = Gram(jacobian_);
@@ -882,7 +888,7 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     }
     // Gradient of n/2 log S (+ sum log mu) scaled by S/n, and the Gauss-Newton Hessian J'J on
     // the same scale.
-    Eigen::VectorXd g = jac.transpose() * r;
+    Eigen::VectorXd g = JacobianTimesResiduals();
     if (spec_.error == model::ErrorType::kMultiplicative) {
       const double scale = r.squaredNorm() / n_obs_;
       for (Eigen::Index i = 0; i < p; ++i) g[i] += scale * grad_log_mu_[static_cast<size_t>(i)];

@@ -82,9 +82,14 @@ class StateSolver {
  private:
   // -loglik at the given state, +infinity when infeasible.
   double Objective(const model::Params& params, double level, double trend, const std::vector<double>& season);
+  // J'r (first p entries of jr_) after Tangents without mu_rows: summed by the tangent pass
+  // while the rows are in registers, instead of a second sweep over the n x p rows.
+  Eigen::VectorXd JacobianTimesResiduals() const {
+    return Eigen::Map<const Eigen::VectorXd>(jr_.data(), p_);
+  }
   // J'J of the Jacobian's p columns, lower triangle (AVX2 kernel where the CPU has it).
   Eigen::MatrixXd Gram(const AlignedVector& rows) const;
-  // Fills jacobian_ (rows = observations, p columns), residuals_, grad_log_mu_ and
+  // Fills jacobian_ (rows = observations, p columns), residuals_, jr_, grad_log_mu_ and
   // tangent_objective_ (-loglik at the state, +infinity when not finite); with mu_rows
   // (affine_mu() forms only) instead rows of d mu / d state for every step and mu0_.
   // With impulse (shifted_ only) the rows have 4 columns (level, trend, the first seasonal state,
@@ -121,6 +126,7 @@ class StateSolver {
   AlignedVector jacobian_;            // n_obs x pp, row-major: d residual_t / d state
   std::vector<double> residuals_;     // n_obs
   AlignedVector grad_log_mu_;         // pp: d sum log mu_t / d state (relative error only)
+  AlignedVector jr_;                  // pp: J'r of the last Tangents (not mu_rows), made by the pass
   AlignedVector t_level_, t_trend_, t_season_;  // tangents of the state, pp per state
   std::vector<double> t_param_season_;                 // 4 per slot: seasonal tangents to the parameters
   std::vector<double> season_work_, trial_season_;
