@@ -27,6 +27,19 @@ using JacobianMap = Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen
 constexpr int kMaxSteps = 20;
 // Step halvings in the line search before the solve gives up on the direction.
 constexpr int kMaxHalvings = 12;
+
+// Backtracking on a Gauss-Newton step: halves the step from 1 until `trial(step)` (the objective
+// there; NaN when the step leaves the region) is below `f`, which it leaves in `f_new`. Returns
+// the accepted step, or 0 when kMaxHalvings halvings found none.
+template <typename Trial>
+double Backtrack(double f, double& f_new, Trial&& trial) {
+  double step = 1.0;
+  for (int halving = 0; halving < kMaxHalvings; ++halving, step *= 0.5) {
+    f_new = trial(step);
+    if (f_new < f) return step;
+  }
+  return 0.0;
+}
 // A step improving -loglik by less than this (relative) ends the solve: well below the
 // optimiser's own tolerance, so the profile it sees is smooth to that level.
 constexpr double kStepTolerance = 1e-12;
@@ -667,19 +680,13 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
     if (!(predicted > kStepTolerance * std::fabs(f))) break;
     jd.noalias() = jmu * delta;
     if (shifted_) jd.array() /= Eigen::Map<const Eigen::ArrayXd>(row_scale_.data(), len);
-    double lambda = 1.0;
-    bool accepted = false;
     double f_new = f;
-    for (int halving = 0; halving < kMaxHalvings; ++halving, lambda *= 0.5) {
-      if (!(level + total[0] + lambda * delta[0] > 0)) continue;
-      for (size_t t = 0; t < mu_.size(); ++t) trial_mu_[t] = mu_[t] + lambda * jd_[t];
-      f_new = MuObjective(trial_mu_.data(), trial_inv_mu_.data(), trial_resid_.data());
-      if (f_new < f) {
-        accepted = true;
-        break;
-      }
-    }
-    if (!accepted) break;
+    const double lambda = Backtrack(f, f_new, [&](double step) -> double {
+      if (!(level + total[0] + step * delta[0] > 0)) return NAN;
+      for (size_t t = 0; t < mu_.size(); ++t) trial_mu_[t] = mu_[t] + step * jd_[t];
+      return MuObjective(trial_mu_.data(), trial_inv_mu_.data(), trial_resid_.data());
+    });
+    if (lambda == 0.0) break;
     if (lambda < 1.0) refresh = true;
     const double gain = f - f_new;
     f = f_new;
@@ -899,20 +906,14 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     // below the tolerance the state is converged and the line search is skipped.
     const double predicted = -0.5 * n_obs_ / r.squaredNorm() * g.dot(delta);
     if (!(predicted > kStepTolerance * std::fabs(f))) break;
-    double lambda = 1.0;
-    bool accepted = false;
     double f_new = f;
     double new_level = level, new_trend = trend;
-    for (int halving = 0; halving < kMaxHalvings; ++halving, lambda *= 0.5) {
-      move(delta, lambda, new_level, new_trend, trial_season_);
-      f_new = Objective(params, new_level, new_trend, trial_season_);
+    const double lambda = Backtrack(f, f_new, [&](double step) {
+      move(delta, step, new_level, new_trend, trial_season_);
       ++*passes;
-      if (f_new < f) {
-        accepted = true;
-        break;
-      }
-    }
-    if (!accepted) break;
+      return Objective(params, new_level, new_trend, trial_season_);
+    });
+    if (lambda == 0.0) break;
     if (lambda < 1.0) refresh = true;
     const double gain = f - f_new;
     f = f_new;
