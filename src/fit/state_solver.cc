@@ -818,6 +818,11 @@ double StateSolver::SolveShifted(const model::Params& params, double& level, dou
     }
     sse = Eigen::Map<const Eigen::VectorXd>(out, static_cast<Eigen::Index>(n)).squaredNorm();
   }
+  return TakeAffineStep(delta, sse, sse_start, level, trend, season);
+}
+
+double StateSolver::TakeAffineStep(const Eigen::VectorXd& delta, double sse, double sse_start, double& level,
+                                   double& trend, std::vector<double>& season) {
   if (sse < sse_start) {
     double l = 0, b = 0;
     Displace(delta, 1.0, level, trend, season, l, b, trial_season_);
@@ -828,8 +833,8 @@ double StateSolver::SolveShifted(const model::Params& params, double& level, dou
     sse = sse_start;
   }
   if (!(sse > 0) || !std::isfinite(sse)) return kInf;
-  const double nn = n_obs_;
-  return 0.5 * nn * (std::log(2.0 * std::numbers::pi * sse / nn) + 1.0);
+  const double n = n_obs_;
+  return 0.5 * n * (std::log(2.0 * std::numbers::pi * sse / n) + 1.0);
 }
 
 double StateSolver::Solve(const model::Params& params, double& level, double& trend,
@@ -851,19 +856,8 @@ double StateSolver::Solve(const model::Params& params, double& level, double& tr
     h.diagonal().array() += 1e-12 * std::max(h.diagonal().maxCoeff(), 1e-300);
     const Eigen::VectorXd delta = -(h.selfadjointView<Eigen::Lower>().ldlt().solve(JacobianTimesResiduals()));
     const double sse_start = r.squaredNorm();
-    double sse = delta.allFinite() ? (r + jac * delta).squaredNorm() : kInf;
-    if (sse < sse_start) {
-      double l = 0, b = 0;
-      move(delta, 1.0, l, b, trial_season_);
-      level = l;
-      trend = b;
-      season.swap(trial_season_);
-    } else {
-      sse = sse_start;
-    }
-    if (!(sse > 0) || !std::isfinite(sse)) return kInf;
-    const double n = n_obs_;
-    return 0.5 * n * (std::log(2.0 * std::numbers::pi * sse / n) + 1.0);
+    const double sse = delta.allFinite() ? (r + jac * delta).squaredNorm() : kInf;
+    return TakeAffineStep(delta, sse, sse_start, level, trend, season);
   }
   // Infeasible starts as in Objective; the start's -loglik comes with the first tangent pass.
   if (spec_.needs_positive_data() && !(level > 0)) return kInf;

@@ -116,6 +116,10 @@ class StateSolver {
   // the last seasonal state keeping the normalisation.
   void Displace(const Eigen::VectorXd& delta, double lambda, double level, double trend,
                 const std::vector<double>& season, double& l, double& b, std::vector<double>& s) const;
+  // Affine solves: moves the state by the full step `delta` when its SSE beats the start's, and
+  // returns the concentrated -loglik at the SSE kept (+infinity unless positive and finite).
+  double TakeAffineStep(const Eigen::VectorXd& delta, double sse, double sse_start, double& level, double& trend,
+                        std::vector<double>& season);
 
   model::ModelSpec spec_;
   std::span<const double> y_;
