@@ -14,6 +14,16 @@
 namespace plimsoll::fit {
 namespace {
 
+// A smooth seasonal pattern for `spec` (factors around 1 or offsets around 0); empty without season.
+std::vector<double> SineSeason(const model::ModelSpec& spec, int m) {
+  std::vector<double> season;
+  for (int j = 0; j < (spec.has_season() ? m : 0); ++j) {
+    const double v = std::sin(2 * 3.14159265358979 * (j + 0.5) / m);
+    season.push_back(spec.season == model::SeasonType::kMultiplicative ? 1.0 + 0.2 * v : 15.0 * v);
+  }
+  return season;
+}
+
 double NegLoglik(const model::ModelSpec& spec, const model::Params& p, double level, double trend,
                  const std::vector<double>& season, const std::vector<double>& y) {
   auto r = model::EvaluateLikelihood(spec, p, model::MakeState(level, trend, season), y);
@@ -30,11 +40,7 @@ TEST_CASE("the state solve reaches a point no coordinate move improves", "[fit]"
       auto spec = model::ParseModelSpec(form, m);
       REQUIRE(spec.ok());
       const bool mult_season = spec->season == model::SeasonType::kMultiplicative;
-      std::vector<double> truth_season;
-      for (int j = 0; j < (spec->has_season() ? m : 0); ++j) {
-        const double v = std::sin(2 * 3.14159265358979 * (j + 0.5) / m);
-        truth_season.push_back(mult_season ? 1.0 + 0.2 * v : 15.0 * v);
-      }
+      const std::vector<double> truth_season = SineSeason(*spec, m);
       const model::Params p{0.3, spec->has_trend() ? 0.003 : 0.0, spec->has_season() ? 0.1 : 0.0,
                             spec->damped() ? 0.9 : 1.0};
       std::vector<double> y = model::SimulateSeries(*spec, p, model::MakeState(400, 0.3, truth_season),
@@ -94,12 +100,7 @@ TEST_CASE("the parameter gradient matches central differences of the likelihood"
                            "ETS(M,N,M)", "ETS(M,Ad,M)"}) {
     auto spec = model::ParseModelSpec(form, m);
     REQUIRE(spec.ok());
-    const bool mult_season = spec->season == model::SeasonType::kMultiplicative;
-    std::vector<double> season;
-    for (int j = 0; j < (spec->has_season() ? m : 0); ++j) {
-      const double v = std::sin(2 * 3.14159265358979 * (j + 0.5) / m);
-      season.push_back(mult_season ? 1.0 + 0.2 * v : 15.0 * v);
-    }
+    const std::vector<double> season = SineSeason(*spec, m);
     const model::Params truth{0.3, spec->has_trend() ? 0.02 : 0.0, spec->has_season() ? 0.1 : 0.0,
                               spec->damped() ? 0.9 : 1.0};
     std::vector<double> y = model::SimulateSeries(*spec, truth, model::MakeState(400, 0.3, season),
