@@ -29,6 +29,7 @@
 #include "bench/kafka_bench_util.h"
 #include "cli/daemon_setup.h"
 #include "cli/sources.h"
+#include "plimsoll/base/thread_name.h"
 #include "plimsoll/kafka/embedded_broker.h"
 #include "plimsoll/stream/config.h"
 #include "plimsoll/stream/daemon.h"
@@ -202,7 +203,10 @@ Result<DaemonRound> RunDaemonRound(const std::string& bootstrap, const std::stri
   stream::RecordDecoder decoder(config->source.decode);
   std::atomic<bool> stop{false};
   Status run;
-  std::thread owner([&] { run = (*daemon)->Run(*opened->source, decoder, stop, &timing); });
+  std::thread owner([&] {
+    NameThisThread("bench-owner");  // apart from the plain consumer's thread in profiles
+    run = (*daemon)->Run(*opened->source, decoder, stop, &timing);
+  });
 
   const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(300);
   while (!timing.Done() && std::chrono::steady_clock::now() < deadline)
