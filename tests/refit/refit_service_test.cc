@@ -8,6 +8,7 @@
 
 #include "plimsoll/refit/refit.h"
 #include "refit/refit_test_util.h"
+#include "stream/level_choice_util.h"
 
 namespace plimsoll::refit {
 namespace {
@@ -35,15 +36,7 @@ struct TestChooser {
     if (clock != nullptr && spend_ms.load() > 0) clock->AdvanceMillis(spend_ms.load());
     running.fetch_sub(1);
     if (fail.load()) return Status::NumericFailure("test chooser told to fail");
-    ModelChoice c;
-    c.spec = model::ModelSpec{};
-    c.params.alpha = 0.9;
-    for (double v : history)
-      if (!std::isnan(v)) {
-        c.initial.level = v;
-        break;
-      }
-    c.initial.sigma2 = 1.0;
+    ModelChoice c = stream::testing::LevelChoice(history, 0.9, 1.0);
     c.aicc = static_cast<double>(history.size());
     return c;
   }

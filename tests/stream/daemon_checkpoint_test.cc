@@ -25,6 +25,7 @@
 #include "plimsoll/stream/decode.h"
 #include "plimsoll/stream/engine.h"
 #include "plimsoll/stream/source.h"
+#include "stream/level_choice_util.h"
 #include "stream/one_stream_source_util.h"
 
 namespace plimsoll::stream {
@@ -87,16 +88,7 @@ class FeedSource final : public testing::OneStreamSource {
 };
 
 Result<ModelChoice> Choose(std::span<const double> history, const SeriesRules&, bool) {
-  ModelChoice c;
-  c.spec = model::ModelSpec{};  // ETS(A,N,N)
-  c.params.alpha = 0.3;
-  for (double v : history)
-    if (!std::isnan(v)) {
-      c.initial.level = v;
-      break;
-    }
-  c.initial.sigma2 = 16.0;
-  return c;
+  return testing::LevelChoice(history, 0.3, 16.0);
 }
 
 EngineOptions Profiles() {

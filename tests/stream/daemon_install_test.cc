@@ -17,6 +17,7 @@
 #include "plimsoll/stream/decode.h"
 #include "plimsoll/stream/engine.h"
 #include "plimsoll/stream/refit_service.h"
+#include "stream/level_choice_util.h"
 #include "stream/one_stream_source_util.h"
 
 namespace plimsoll::stream {
@@ -30,12 +31,7 @@ constexpr int kRounds = 60;
 constexpr int kSeries = 20;
 
 Result<ModelChoice> Choose(std::span<const double> history, const SeriesRules&, bool) {
-  ModelChoice c;
-  c.spec = model::ModelSpec{};  // ETS(A,N,N)
-  c.params.alpha = kOldAlpha;
-  c.initial.level = history.empty() ? 0.0 : history.front();
-  c.initial.sigma2 = 4.0;
-  return c;
+  return testing::LevelChoice(history, kOldAlpha, 4.0);
 }
 
 // Swaps a new alpha into series "s-00" at its fifth call, the way the refit service installs a
