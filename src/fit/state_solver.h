@@ -34,18 +34,18 @@
 
 namespace plimsoll::fit {
 
-// Allocates on 32-byte boundaries, so the tangent pass may use aligned 4-wide loads and stores.
+// Allocates on 64-byte boundaries, so the tangent pass may use aligned 4- and 8-wide loads and stores.
 template <typename T>
-struct Aligned32Allocator {
+struct Aligned64Allocator {
   using value_type = T;
-  Aligned32Allocator() = default;
+  Aligned64Allocator() = default;
   template <typename U>
-  explicit Aligned32Allocator(const Aligned32Allocator<U>&) {}
-  T* allocate(size_t n) { return static_cast<T*>(::operator new(n * sizeof(T), std::align_val_t{32})); }
-  void deallocate(T* p, size_t) { ::operator delete(p, std::align_val_t{32}); }
-  friend bool operator==(const Aligned32Allocator&, const Aligned32Allocator&) { return true; }
+  explicit Aligned64Allocator(const Aligned64Allocator<U>&) {}
+  T* allocate(size_t n) { return static_cast<T*>(::operator new(n * sizeof(T), std::align_val_t{64})); }
+  void deallocate(T* p, size_t) { ::operator delete(p, std::align_val_t{64}); }
+  friend bool operator==(const Aligned64Allocator&, const Aligned64Allocator&) { return true; }
 };
-using AlignedVector = std::vector<double, Aligned32Allocator<double>>;
+using AlignedVector = std::vector<double, Aligned64Allocator<double>>;
 
 class StateSolver {
  public:
@@ -87,7 +87,8 @@ class StateSolver {
   Eigen::VectorXd JacobianTimesResiduals() const {
     return Eigen::Map<const Eigen::VectorXd>(jr_.data(), p_);
   }
-  // J'J of the Jacobian's p columns, lower triangle (AVX2 kernel where the CPU has it).
+  // J'J of the Jacobian's p columns, lower triangle (AVX-512 or AVX2 kernel where the CPU has it;
+  // both give the same bits).
   Eigen::MatrixXd Gram(const AlignedVector& rows) const;
   // Fills jacobian_ (rows = observations, p columns), residuals_, jr_, grad_log_mu_ and
   // tangent_objective_ (-loglik at the state, +infinity when not finite); with mu_rows
@@ -125,7 +126,8 @@ class StateSolver {
   std::span<const double> y_;
   bool estimate_season_;
   int p_ = 0;       // free state coordinates
-  int pp_ = 0;      // p_ rounded up to a multiple of 4 (pairs in the tangent pass, 4-wide Gram blocks)
+  bool wide_ = false;  // AVX-512 and more than 4 columns: rows of a multiple of 8, 8-wide passes
+  int pp_ = 0;      // p_ rounded up to a multiple of 4 (8 when wide_): the row stride
   int n_obs_ = 0;   // non-missing observations
   AlignedVector jacobian_;            // n_obs x pp, row-major: d residual_t / d state
   std::vector<double> residuals_;     // n_obs
