@@ -390,12 +390,15 @@ __attribute__((target("avx512f"), optimize("fp-contract=off"))) bool TangentPass
 }
 
 // The gradient of -loglik with respect to (alpha, beta, gamma, phi) with the state held fixed: one
-// forward pass carrying the four tangents (two pairs: (alpha, beta) and (gamma, phi)) of the
-// level, the trend and every seasonal slot. False when infeasible.
+// forward pass carrying the four tangents (lanes alpha, beta, gamma, phi of one 4-wide vector) of
+// the level, the trend and every seasonal slot. False when infeasible. Without AVX the compiler
+// splits each 4-wide operation into two 2-wide ones, lane by lane the same arithmetic.
 template <bool kTrend, model::SeasonType kSeason, bool kMultError>
-bool ParamGradientPass(std::span<const double> y, const model::Params& params, bool damped, double level,
-                         double trend, const std::vector<double>& season, bool needs_positive,
-                         std::vector<double>& season_work, std::vector<double>& t_season, double grad[4]) {
+__attribute__((always_inline)) inline bool ParamGradientPass(std::span<const double> y, const model::Params& params,
+                                                             bool damped, double level, double trend,
+                                                             const std::vector<double>& season, bool needs_positive,
+                                                             std::vector<double>& season_work, AlignedVector& t_season,
+                                                             double grad[4]) {
   constexpr bool kAddSeason = kSeason == model::SeasonType::kAdditive;
   constexpr bool kMultSeason = kSeason == model::SeasonType::kMultiplicative;
   constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
@@ -404,63 +407,52 @@ bool ParamGradientPass(std::span<const double> y, const model::Params& params, b
   t_season.assign(kHasSeason ? 4 * m : 0, 0.0);
   const double alpha = params.alpha, beta = params.beta, gamma = params.gamma;
   const double phi = damped ? params.phi : 1.0;
-  const double dphi = damped ? 1.0 : 0.0;  // phi's own column is live only for damped trends
-  Pair l0{}, l1{}, b0{}, b1{};             // d level, d trend: (alpha, beta), (gamma, phi)
-  Pair g0{}, g1{};                         // sum of residual * d residual
-  Pair h0{}, h1{};                         // sum of d mu / mu (relative error)
+  const double dphi = damped ? 1.0 : 0.0;  // phi's own lane is live only for damped trends
+  Quad dl{}, db{};                         // d level, d trend
+  Quad g{};                                // sum of residual * d residual
+  Quad h{};                                // sum of d mu / mu (relative error)
   double l = level, b = kTrend ? trend : 0.0;
   double sse = 0.0;
   int n = 0;
   size_t k = 0;
   for (size_t t = 0; t < y.size(); ++t) {
     const double lp = l + phi * b;
-    const Pair lp0 = kTrend ? l0 + phi * b0 : l0;
-    const Pair lp1 = kTrend ? l1 + phi * b1 + Pair{0.0, dphi * b} : l1;
+    const Quad dlp = kTrend ? dl + phi * db + Quad{0.0, 0.0, 0.0, dphi * b} : dl;
     double s = 0.0, mu = lp;
-    Pair s0{}, s1{}, mu0 = lp0, mu1 = lp1;
-    Pair* ts = kHasSeason ? reinterpret_cast<Pair*>(t_season.data() + 4 * k) : nullptr;
+    Quad ds{}, dmu = dlp;
+    Quad* ts = kHasSeason ? reinterpret_cast<Quad*>(t_season.data() + 4 * k) : nullptr;
     if constexpr (kHasSeason) {
       s = season_work[k];
-      s0 = ts[0];
-      s1 = ts[1];
+      ds = *ts;
     }
     if constexpr (kAddSeason) {
       mu = lp + s;
-      mu0 = lp0 + s0;
-      mu1 = lp1 + s1;
+      dmu = dlp + ds;
     } else if constexpr (kMultSeason) {
       mu = lp * s;
-      mu0 = lp0 * s + lp * s0;
-      mu1 = lp1 * s + lp * s1;
+      dmu = dlp * s + lp * ds;
     }
     if (!std::isfinite(mu) || (needs_positive && !(mu > 0))) return false;
     const double yt = y[t];
     const bool missing = std::isnan(yt);
     const double e = missing ? 0.0 : yt - mu;
     const double keep = missing ? 0.0 : 1.0;
-    const Pair e0 = -keep * mu0, e1 = -keep * mu1;
+    const Quad de = -keep * dmu;
     double scaled = e;
-    Pair sc0 = e0, sc1 = e1;
+    Quad dsc = de;
     if constexpr (kMultSeason) {
       scaled = e / s;
       const double inv_s = 1.0 / s, e_s2 = e * inv_s * inv_s;
-      sc0 = e0 * inv_s - e_s2 * s0;
-      sc1 = e1 * inv_s - e_s2 * s1;
+      dsc = de * inv_s - e_s2 * ds;
     }
-    l0 = lp0 + alpha * sc0 + Pair{scaled, 0.0};
-    l1 = lp1 + alpha * sc1;
-    if constexpr (kTrend) {
-      b0 = phi * b0 + beta * sc0 + Pair{0.0, scaled};
-      b1 = phi * b1 + beta * sc1 + Pair{0.0, dphi * b};
-    }
+    dl = dlp + alpha * dsc + Quad{scaled, 0.0, 0.0, 0.0};
+    if constexpr (kTrend) db = phi * db + beta * dsc + Quad{0.0, scaled, 0.0, dphi * b};
     if constexpr (kAddSeason) {
-      ts[0] = s0 + gamma * e0;
-      ts[1] = s1 + gamma * e1 + Pair{e, 0.0};
+      *ts = ds + gamma * de + Quad{0.0, 0.0, e, 0.0};
       season_work[k] = s + gamma * e;
     } else if constexpr (kMultSeason) {
       const double inv_lp = 1.0 / lp, e_lp2 = e * inv_lp * inv_lp;
-      ts[0] = s0 + gamma * (e0 * inv_lp - e_lp2 * lp0);
-      ts[1] = s1 + gamma * (e1 * inv_lp - e_lp2 * lp1) + Pair{e * inv_lp, 0.0};
+      *ts = ds + gamma * (de * inv_lp - e_lp2 * dlp) + Quad{0.0, 0.0, e * inv_lp, 0.0};
       season_work[k] = s + gamma * e / lp;
     }
     l = lp + alpha * scaled;
@@ -472,25 +464,40 @@ bool ParamGradientPass(std::span<const double> y, const model::Params& params, b
       const double r = e / mu;
       const double c = -r * yt / (mu * mu);  // r * d r / d mu
       sse += r * r;
-      g0 += c * mu0;
-      g1 += c * mu1;
+      g += c * dmu;
       const double inv_mu = 1.0 / mu;
-      h0 += inv_mu * mu0;
-      h1 += inv_mu * mu1;
+      h += inv_mu * dmu;
     } else {
       sse += e * e;
-      g0 += e * e0;
-      g1 += e * e1;
+      g += e * de;
     }
   }
   if (n == 0 || !(sse > 0) || !std::isfinite(sse)) return false;
   const double w = n / sse;
-  const Pair d0 = w * g0 + h0, d1 = w * g1 + h1;
-  grad[0] = d0[0];
-  grad[1] = kTrend ? d0[1] : 0.0;
-  grad[2] = kHasSeason ? d1[0] : 0.0;
-  grad[3] = kTrend && damped ? d1[1] : 0.0;
-  return std::isfinite(d0[0] + d0[1] + d1[0] + d1[1]);
+  const Quad d = w * g + h;
+  grad[0] = d[0];
+  grad[1] = kTrend ? d[1] : 0.0;
+  grad[2] = kHasSeason ? d[2] : 0.0;
+  grad[3] = kTrend && damped ? d[3] : 0.0;
+  return std::isfinite(d[0] + d[1] + d[2] + d[3]);
+}
+
+template <bool kTrend, model::SeasonType kSeason, bool kMultError>
+__attribute__((target("avx2"))) bool ParamGradientPassAvx2(std::span<const double> y, const model::Params& params,
+                                                           bool damped, double level, double trend,
+                                                           const std::vector<double>& season, bool needs_positive,
+                                                           std::vector<double>& season_work, AlignedVector& t_season,
+                                                           double grad[4]) {
+  return ParamGradientPass<kTrend, kSeason, kMultError>(y, params, damped, level, trend, season, needs_positive,
+                                                        season_work, t_season, grad);
+}
+
+template <bool kTrend, model::SeasonType kSeason, bool kMultError>
+bool ParamGradientPassBase(std::span<const double> y, const model::Params& params, bool damped, double level,
+                           double trend, const std::vector<double>& season, bool needs_positive,
+                           std::vector<double>& season_work, AlignedVector& t_season, double grad[4]) {
+  return ParamGradientPass<kTrend, kSeason, kMultError>(y, params, damped, level, trend, season, needs_positive,
+                                                        season_work, t_season, grad);
 }
 
 }  // namespace
@@ -523,9 +530,14 @@ bool DispatchShape(const model::ModelSpec& spec, Run& run) {
 bool StateSolver::ParamGradient(const model::Params& params, double level, double trend,
                                   const std::vector<double>& season, double grad[4]) {
   const bool positive = spec_.needs_positive_data();
+  const bool avx2 = __builtin_cpu_supports("avx2");
   auto run = [&]<bool kTrend, model::SeasonType kSeason, bool kMultError>() {
-    return ParamGradientPass<kTrend, kSeason, kMultError>(y_, params, spec_.damped(), level, trend, season, positive,
-                                                          season_work_, t_param_season_, grad);
+    if (avx2) {
+      return ParamGradientPassAvx2<kTrend, kSeason, kMultError>(y_, params, spec_.damped(), level, trend, season,
+                                                                positive, season_work_, t_param_season_, grad);
+    }
+    return ParamGradientPassBase<kTrend, kSeason, kMultError>(y_, params, spec_.damped(), level, trend, season,
+                                                              positive, season_work_, t_param_season_, grad);
   };
   return DispatchShape(spec_, run);
 }

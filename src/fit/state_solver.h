@@ -134,7 +134,7 @@ class StateSolver {
   AlignedVector grad_log_mu_;         // pp: d sum log mu_t / d state (relative error only)
   AlignedVector jr_;                  // pp: J'r of the last Tangents (not mu_rows), made by the pass
   AlignedVector t_level_, t_trend_, t_season_;  // tangents of the state, pp per state
-  std::vector<double> t_param_season_;                 // 4 per slot: seasonal tangents to the parameters
+  AlignedVector t_param_season_;                       // 4 per slot: seasonal tangents to the parameters
   std::vector<double> season_work_, trial_season_;
   mutable std::vector<double> gram_;  // pp x pp scratch of Gram()
   double tangent_objective_ = 0.0;    // -loglik at the state of the last Tangents (not mu_rows)
