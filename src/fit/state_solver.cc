@@ -10,6 +10,7 @@
 #include <bit>
 #include <cstdint>
 #include <cmath>
+#include <cstring>
 #include <limits>
 #include <numbers>
 
@@ -256,7 +257,9 @@ typedef double Pair __attribute__((vector_size(16), may_alias));
 // With kMuRows (relative error, additive components) the rows are d mu / d state for every step
 // (gaps included) and `residuals` receives mu; grad_log_mu is left alone. Otherwise `jr` (pp,
 // zeroed by the caller) receives J'r, summed over the kept rows in order as the rows are made.
-template <typename V, bool kTrend, model::SeasonType kSeason, bool kMultError, bool kMuRows = false>
+// kPairs > 0: the row holds exactly kPairs vectors, and the level and trend tangents and the sums
+// stay in registers across steps (no store-to-load round trip on the recursion's dependency chain).
+template <typename V, int kPairs, bool kTrend, model::SeasonType kSeason, bool kMultError, bool kMuRows = false>
 __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y, const model::Params& params,
                                                        double phi, double level, double trend,
                                                        std::vector<double>& season_work, size_t pp,
@@ -270,14 +273,22 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
   constexpr bool kHasSeason = kSeason != model::SeasonType::kNone;
   const size_t m = season_work.size();
   const double alpha = params.alpha, beta = params.beta, gamma = params.gamma;
-  const size_t pairs = pp / (sizeof(V) / sizeof(double));
+  const size_t pairs = kPairs > 0 ? static_cast<size_t>(kPairs) : pp / (sizeof(V) / sizeof(double));
   double l = level, b = kTrend ? trend : 0.0;
   size_t row = 0;
   size_t k = 0;  // seasonal slot of this observation
-  V* __restrict vl = reinterpret_cast<V*>(tl);
-  V* __restrict vb = reinterpret_cast<V*>(tb);
-  V* __restrict vg = reinterpret_cast<V*>(grad_log_mu);
-  V* __restrict vjr = reinterpret_cast<V*>(jr);
+  constexpr size_t kLocal = kPairs > 0 ? static_cast<size_t>(kPairs) : 1;
+  V local_l[kLocal], local_b[kLocal], local_g[kLocal], local_jr[kLocal];
+  if constexpr (kPairs > 0) {
+    std::memcpy(local_l, tl, sizeof(local_l));
+    std::memcpy(local_b, tb, sizeof(local_b));
+    std::memcpy(local_g, grad_log_mu, sizeof(local_g));
+    std::memcpy(local_jr, jr, sizeof(local_jr));
+  }
+  V* __restrict vl = kPairs > 0 ? local_l : reinterpret_cast<V*>(tl);
+  V* __restrict vb = kPairs > 0 ? local_b : reinterpret_cast<V*>(tb);
+  V* __restrict vg = kPairs > 0 ? local_g : reinterpret_cast<V*>(grad_log_mu);
+  V* __restrict vjr = kPairs > 0 ? local_jr : reinterpret_cast<V*>(jr);
   // Relative error: sum of log mu_t over the observations as a product of mantissas (four
   // chains) and a binary exponent, as model::EvaluateLikelihood accumulates it.
   double product[4] = {1.0, 1.0, 1.0, 1.0};
@@ -350,6 +361,10 @@ __attribute__((always_inline)) inline bool TangentPass(std::span<const double> y
     for (size_t i = 0; i < pairs; ++i) vjr[i] += r * vj[i];
     ++row;
   }
+  if constexpr (kPairs > 0) {
+    std::memcpy(grad_log_mu, local_g, sizeof(local_g));
+    std::memcpy(jr, local_jr, sizeof(local_jr));
+  }
   if constexpr (kMultError && !kMuRows) {
     double sum = static_cast<double>(exponent) * std::numbers::ln2;
     for (double q : product) sum += std::log(q);
@@ -369,9 +384,14 @@ __attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, 
                                                      size_t pp, double* tl, double* tb, double* t_season,
                                                      double* jacobian, double* residuals, double* grad_log_mu,
                                                      double* jr, bool needs_positive, double* log_mu_sum) {
-  return TangentPass<Quad, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl, tb,
-                                                                 t_season, jacobian, residuals, grad_log_mu, jr,
-                                                                 needs_positive, log_mu_sum);
+  if (pp == 4) {
+    return TangentPass<Quad, 1, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl,
+                                                                      tb, t_season, jacobian, residuals, grad_log_mu,
+                                                                      jr, needs_positive, log_mu_sum);
+  }
+  return TangentPass<Quad, 0, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl,
+                                                                    tb, t_season, jacobian, residuals, grad_log_mu, jr,
+                                                                    needs_positive, log_mu_sum);
 }
 
 // Eight doubles (AVX-512) where the CPU has it: rows are then a multiple of 8 doubles, 64-byte
@@ -384,9 +404,18 @@ __attribute__((target("avx512f"), optimize("fp-contract=off"))) bool TangentPass
     std::span<const double> y, const model::Params& params, double phi, double level, double trend,
     std::vector<double>& season_work, size_t pp, double* tl, double* tb, double* t_season, double* jacobian,
     double* residuals, double* grad_log_mu, double* jr, bool needs_positive, double* log_mu_sum) {
-  return TangentPass<Oct, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp, tl, tb,
-                                                                t_season, jacobian, residuals, grad_log_mu, jr,
-                                                                needs_positive, log_mu_sum);
+  auto fixed = [&]<int kPairs>() {
+    return TangentPass<Oct, kPairs, kTrend, kSeason, kMultError, kMuRows>(y, params, phi, level, trend, season_work, pp,
+                                                                          tl, tb, t_season, jacobian, residuals,
+                                                                          grad_log_mu, jr, needs_positive, log_mu_sum);
+  };
+  switch (pp) {
+    case 8: return fixed.template operator()<1>();
+    case 16: return fixed.template operator()<2>();
+    case 24: return fixed.template operator()<3>();
+    case 32: return fixed.template operator()<4>();
+    default: return fixed.template operator()<0>();
+  }
 }
 
 // The gradient of -loglik with respect to (alpha, beta, gamma, phi) with the state held fixed: one
@@ -588,7 +617,7 @@ bool StateSolver::Tangents(const model::Params& params, double level, double tre
                                                                      grad_log_mu_.data(), jr_.data(), positive,
                                                                      &log_mu_sum);
       }
-      return TangentPass<Pair, kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
+      return TangentPass<Pair, 0, kTrend, kSeason, kMultError, kMuRows>(y_, params, phi, level, trend, season_work_, pp,
                                                                      t_level_.data(), t_trend_.data(),
                                                                      t_season_.data(), rows, out,
                                                                      grad_log_mu_.data(), jr_.data(), positive,
