@@ -209,6 +209,7 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
     columns_.assign(4 * (y.size() + lag_width_ + 4), 0.0);
     lags_.resize(4 * lag_width_);
     jd_shift_.resize(y.size());
+    shift_.resize(m);
   }
   residuals_.resize(static_cast<size_t>(n_obs_));
   for (auto* v : {&grad_log_mu_, &jr_, &t_level_, &t_trend_}) v->resize(pp);
@@ -693,6 +694,53 @@ void LagSumsAny(const double* c, const double* const* xs, int arrays, size_t n, 
   }
 }
 
+// out[t] += sum over j < min(m, t + 1) of d[j] * c[t - j], the terms added to out[t] one by one in
+// order of j, each product rounded before its addition (no fused multiply-adds): the same bits
+// as the plain loops, which made m sweeps over `out`; here each out[t] stays in a register.
+template <typename V>
+__attribute__((always_inline)) inline void ShiftedSums(const double* d, size_t m, const double* c, size_t n,
+                                                      double* out) {
+  constexpr size_t kW = sizeof(V) / sizeof(double);
+  size_t t = 0;
+  for (; t < std::min(m, n); ++t) {
+    for (size_t j = 0; j <= t; ++j) out[t] += d[j] * c[t - j];
+  }
+  for (; t + kW <= n; t += kW) {
+    V acc;
+    __builtin_memcpy(&acc, out + t, sizeof(V));
+    for (size_t j = 0; j < m; ++j) {
+      V x;
+      __builtin_memcpy(&x, c + t - j, sizeof(V));
+      acc = acc + d[j] * x;
+    }
+    __builtin_memcpy(out + t, &acc, sizeof(V));
+  }
+  for (; t < n; ++t) {
+    for (size_t j = 0; j < m; ++j) out[t] += d[j] * c[t - j];
+  }
+}
+
+__attribute__((target("avx512f"), optimize("fp-contract=off"))) void ShiftedSumsAvx512(const double* d, size_t m,
+                                                                                        const double* c, size_t n,
+                                                                                        double* out) {
+  ShiftedSums<Oct>(d, m, c, n, out);
+}
+
+__attribute__((target("avx2"))) void ShiftedSumsAvx2(const double* d, size_t m, const double* c, size_t n,
+                                                     double* out) {
+  ShiftedSums<Quad>(d, m, c, n, out);
+}
+
+void AddShiftedSums(const double* d, size_t m, const double* c, size_t n, double* out) {
+  if (__builtin_cpu_supports("avx512f")) {
+    ShiftedSumsAvx512(d, m, c, n, out);
+  } else if (__builtin_cpu_supports("avx2")) {
+    ShiftedSumsAvx2(d, m, c, n, out);
+  } else {
+    ShiftedSums<Pair>(d, m, c, n, out);
+  }
+}
+
 }  // namespace
 
 double StateSolver::MuObjective(const double* mu, double* inv_mu, double* resid) const {
@@ -936,8 +984,9 @@ double StateSolver::SolveShifted(const model::Params& params, double& level, dou
     for (size_t j = 0; j < m; ++j) {
       const double dj = j + 1 < m ? delta[static_cast<Eigen::Index>(o + j)] : -moved;
       moved += dj;
-      for (size_t t = j; t < n; ++t) out[t] += dj * col_c[t - j];
+      shift_[j] = dj;
     }
+    AddShiftedSums(shift_.data(), m, col_c, n, out);
     sse = Eigen::Map<const Eigen::VectorXd>(out, static_cast<Eigen::Index>(n)).squaredNorm();
   }
   return TakeAffineStep(delta, sse, sse_start, level, trend, season);

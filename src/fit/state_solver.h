@@ -147,6 +147,7 @@ class StateSolver {
   size_t lag_width_ = 0;              // m rounded up to a multiple of 4
   AlignedVector impulse_;             // n x 4 rows: level, trend, first seasonal state, pad
   std::vector<double> columns_, lags_, jd_shift_;  // zero-padded columns, their lag sums, r + J delta
+  std::vector<double> shift_;         // m: the raw seasonal step (free coordinates and the last state)
 };
 
 }  // namespace plimsoll::fit
