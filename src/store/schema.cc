@@ -140,6 +140,31 @@ INSERT INTO history_by_step(series, max_step, seq, min_step, count, format, poin
 DROP TABLE history;
 ALTER TABLE history_by_step RENAME TO history;
 )sql"},
+    {6, "history rows clustered by compaction generation: a compaction appends at the end of the table",
+     R"sql(
+CREATE TABLE history_generations (
+  gen          INTEGER PRIMARY KEY,
+  points       INTEGER NOT NULL,
+  compacted_ms INTEGER NOT NULL
+);
+INSERT INTO history_generations(gen, points, compacted_ms)
+  SELECT 0, total, 0 FROM (SELECT sum(count) AS total FROM history) WHERE total IS NOT NULL;
+CREATE TABLE history_by_generation (
+  gen      INTEGER NOT NULL,
+  series   INTEGER NOT NULL REFERENCES series(id),
+  seq      INTEGER NOT NULL,
+  min_step INTEGER NOT NULL,
+  max_step INTEGER NOT NULL,
+  count    INTEGER NOT NULL,
+  format   INTEGER NOT NULL,
+  points   BLOB NOT NULL,
+  PRIMARY KEY (gen, series, seq)
+) WITHOUT ROWID;
+INSERT INTO history_by_generation(gen, series, seq, min_step, max_step, count, format, points)
+  SELECT 0, series, seq, min_step, max_step, count, format, points FROM history ORDER BY series, seq;
+DROP TABLE history;
+ALTER TABLE history_by_generation RENAME TO history;
+)sql"},
 };
 
 Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }

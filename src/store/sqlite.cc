@@ -131,6 +131,19 @@ std::string_view Statement::BlobView(int col) const {
   return std::string_view(static_cast<const char*>(data), static_cast<size_t>(sqlite3_column_bytes(stmt_, col)));
 }
 
+Status SqliteDb::ReadBlob(const char* table, const char* column, int64_t rowid, std::span<char> out) {
+  sqlite3_blob* raw = nullptr;
+  const int rc = sqlite3_blob_open(db_, "main", table, column, rowid, /*flags=read-only*/ 0, &raw);
+  const std::unique_ptr<sqlite3_blob, int (*)(sqlite3_blob*)> blob(raw, sqlite3_blob_close);
+  const std::string context = std::string("reading ") + table + "." + column + " of row " + std::to_string(rowid);
+  if (rc != SQLITE_OK) return SqliteStatus(rc, context, db_);
+  if (static_cast<size_t>(sqlite3_blob_bytes(blob.get())) != out.size())
+    return Status::InvalidArgument(context + ": the blob has " + std::to_string(sqlite3_blob_bytes(blob.get())) +
+                                   " bytes, not " + std::to_string(out.size()));
+  if (out.empty()) return Status::Ok();
+  return SqliteStatus(sqlite3_blob_read(blob.get(), out.data(), static_cast<int>(out.size()), 0), context, db_);
+}
+
 Result<std::unique_ptr<SqliteDb>> SqliteDb::Open(const std::string& path, int flags) {
   sqlite3* raw = nullptr;
   int rc = sqlite3_open_v2(path.c_str(), &raw, flags | SQLITE_OPEN_NOMUTEX, nullptr);

@@ -89,6 +89,11 @@ class SqliteDb {
   // Runs a single-value query such as "PRAGMA user_version". NotFound when it returns no row.
   Result<int64_t> QueryInt(std::string_view sql);
 
+  // Copies the blob in `column` of the row `rowid` of `table` into `out`, which must be exactly
+  // the blob's size (InvalidArgument otherwise), without SQLite assembling the value in memory
+  // of its own first (incremental blob I/O): for multi-megabyte history log rows.
+  Status ReadBlob(const char* table, const char* column, int64_t rowid, std::span<char> out);
+
   // True while no explicit transaction is open.
   bool autocommit() const { return sqlite3_get_autocommit(db_) != 0; }
   int64_t changes() const { return sqlite3_changes64(db_); }

@@ -12,6 +12,7 @@
 #include <thread>
 #include <unordered_map>
 
+#include "plimsoll/base/huge_pages.h"
 #include "store/schema.h"
 #include "store/sqlite.h"
 
@@ -28,6 +29,8 @@ constexpr size_t kLogPointBytes = 3 * sizeof(int64_t);
 // a point instead of 24). See notes/store-docs.md.
 constexpr int64_t kLogFormatPoints = 1;
 constexpr int64_t kLogFormatRuns = 2;
+
+constexpr uint32_t kNoSlot = UINT32_MAX;
 
 struct StringHash {
   using is_transparent = void;
@@ -140,9 +143,11 @@ struct KeyedRow {
   static bool ByKey(const KeyedRow& a, const KeyedRow& b) { return a.key != b.key ? a.key < b.key : a.step < b.step; }
 };
 
-struct LogPoint {
-  int64_t series, step;
-  double value;
+// One run of a history log row during compaction: `count` values for consecutive steps from
+// `first_step`, stored at byte `offset` of the compaction's copy of the log blobs.
+struct LogRun {
+  int64_t series, first_step;
+  size_t count, offset;
 };
 
 constexpr const char* kSeriesSelect =
@@ -244,7 +249,8 @@ class Store::Impl {
   Status CountRow(Tally& tally);
   Result<int64_t> Resolve(std::string_view name, std::string_view what) const;
   Result<int64_t> LookupSeries(std::string_view name);
-  Status WriteHistoryRows(Statement& insert, int64_t series, std::span<const LogPoint> points);
+  Status WriteHistoryRows(Statement& insert, int64_t gen, int64_t series, std::span<const LogRun> runs,
+                          std::string_view log_bytes);
 
   // Series name -> integer key for the writer; rolled back with the transaction that added names.
   std::unordered_map<std::string, int64_t, StringHash, std::equal_to<>> series_ids_;
@@ -253,10 +259,11 @@ class Store::Impl {
   int64_t log_points_ = 0;  // points in history_log awaiting compaction
   int64_t next_history_seq_ = 0;  // history.seq of the next row compaction writes (history_seq.next_seq)
   std::string row_buffer_;  // WriteHistoryRows
+  std::string run_values_;  // WriteHistoryRows: values of the run being built
   std::string pack_buffer_;
   std::vector<int64_t> history_keys_;     // WriteBatch: distinct series keys of batch.history
   std::vector<uint32_t> history_slots_;   // WriteBatch: batch.history.series index -> history_keys_ index
-  std::unordered_map<int64_t, uint32_t> slot_of_key_;
+  std::vector<uint32_t> slot_of_key_;  // WriteBatch: series key -> history_keys_ index, kNoSlot between batches
   std::vector<uint32_t> run_starts_;   // WriteBatch: counting sort of history points by series
   std::vector<uint32_t> run_order_;
   std::vector<KeyedRow> keyed_;        // WriteBatch: states / flags in key order
@@ -384,14 +391,22 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
     // Each name's key and a dense slot per distinct key (a batch may name a series more than once).
     history_keys_.clear();
     history_slots_.clear();
-    slot_of_key_.clear();
     for (const std::string& name : batch.history.series) {
       Result<int64_t> id = Resolve(name, "history point");
       if (!id.ok()) return id.status();
-      auto [it, added] = slot_of_key_.try_emplace(*id, static_cast<uint32_t>(history_keys_.size()));
-      if (added) history_keys_.push_back(*id);
-      history_slots_.push_back(it->second);
+      // Keys are SQLite rowids, dense from 1: a vector beats a hash map of 100k nodes per commit.
+      if (*id < 0 || *id > INT32_MAX)
+        return Status::Corruption("series '" + name + "' has key " + std::to_string(*id) + ", outside 0.." +
+                                  std::to_string(INT32_MAX));
+      const auto key = static_cast<size_t>(*id);
+      if (key >= slot_of_key_.size()) slot_of_key_.resize(std::max(key + 1, slot_of_key_.size() * 5 / 4), kNoSlot);
+      if (slot_of_key_[key] == kNoSlot) {
+        slot_of_key_[key] = static_cast<uint32_t>(history_keys_.size());
+        history_keys_.push_back(*id);
+      }
+      history_slots_.push_back(slot_of_key_[key]);
     }
+    for (int64_t key : history_keys_) slot_of_key_[static_cast<size_t>(key)] = kNoSlot;
     // Group the points by series (a stable counting sort: a series' points keep their order), then
     // write each series' consecutive steps as one run.
     const std::vector<HistoryBatch::Point>& points = batch.history.points;
@@ -549,76 +564,119 @@ Status Store::Impl::Commit(const CommitBatch& batch) {
   return Status::Ok();
 }
 
-Status Store::Impl::WriteHistoryRows(Statement& insert, int64_t series, std::span<const LogPoint> points) {
-  // Runs of consecutive steps, at most history_chunk_points values a row. Rows are never
-  // rewritten: each compaction adds the series' new points as new rows with a higher seq.
+Status Store::Impl::WriteHistoryRows(Statement& insert, int64_t gen, int64_t series, std::span<const LogRun> runs,
+                                     std::string_view log_bytes) {
+  // Rows of at most history_chunk_points values, each a sequence of runs; a log run that
+  // continues the previous one (the next step) extends it, so a series' steps from many commits
+  // become one run. Rows are never rewritten: later compactions add rows of a later generation.
   const auto cap = static_cast<size_t>(options_.history_chunk_points);
-  for (size_t begin = 0; begin < points.size();) {
+  row_buffer_.clear();
+  run_values_.clear();
+  int64_t run_first = 0, min_step = INT64_MAX, max_step = INT64_MIN;
+  size_t run_count = 0, row_values = 0;
+  auto close_run = [&] {
+    if (run_count == 0) return;
+    PutRunHeader(row_buffer_, std::nullopt, run_first, run_count);
+    row_buffer_.append(run_values_);
+    run_values_.clear();
+    run_count = 0;
+  };
+  auto close_row = [&]() -> Status {
+    close_run();
+    if (row_values == 0) return Status::Ok();
+    insert.Bind(1, gen).Bind(2, series).Bind(3, next_history_seq_++).Bind(4, min_step).Bind(5, max_step);
+    insert.Bind(6, static_cast<int64_t>(row_values)).BindBlob(7, row_buffer_, Statement::Bytes::kBorrow);
+    Status status = insert.Run();
     row_buffer_.clear();
-    size_t values = 0;
-    int64_t min_step = INT64_MAX, max_step = INT64_MIN;
-    while (begin < points.size() && values < cap) {
-      size_t end = begin + 1;
-      while (end < points.size() && values + (end - begin) < cap &&
-             points[end].step == points[begin].step + static_cast<int64_t>(end - begin))
-        ++end;
-      PutRunHeader(row_buffer_, std::nullopt, points[begin].step, end - begin);
-      for (size_t i = begin; i < end; ++i) {
-        row_buffer_.append(reinterpret_cast<const char*>(&points[i].value), sizeof(double));
-        min_step = std::min(min_step, points[i].step);
-        max_step = std::max(max_step, points[i].step);
+    row_values = 0, min_step = INT64_MAX, max_step = INT64_MIN;
+    return status;
+  };
+  for (const LogRun& r : runs) {
+    for (size_t done = 0; done < r.count;) {
+      if (row_values == cap) PLIMSOLL_RETURN_IF_ERROR(close_row());
+      const size_t take = std::min(r.count - done, cap - row_values);
+      const int64_t first = r.first_step + static_cast<int64_t>(done);
+      if (run_count == 0 || first != run_first + static_cast<int64_t>(run_count)) {
+        close_run();
+        run_first = first;
       }
-      values += end - begin;
-      begin = end;
+      run_values_.append(log_bytes.substr(r.offset + done * sizeof(double), take * sizeof(double)));
+      run_count += take, row_values += take, done += take;
+      min_step = std::min(min_step, first);
+      max_step = std::max(max_step, first + static_cast<int64_t>(take) - 1);
     }
-    insert.Bind(1, series).Bind(2, next_history_seq_++).Bind(3, min_step).Bind(4, max_step);
-    insert.Bind(5, static_cast<int64_t>(values)).BindBlob(6, row_buffer_, Statement::Bytes::kBorrow);
-    PLIMSOLL_RETURN_IF_ERROR(insert.Run());
   }
-  return Status::Ok();
+  return close_row();
 }
 
 Status Store::Impl::CompactHistory(int64_t max_log_rows) {
   if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
   int64_t moved = 0;
   const int64_t seq_before = next_history_seq_;
+  const int64_t start = options_.clock->MonotonicNanos();
   Status status = RunTransaction(
       "history compaction",
       [&]() -> Status {
         next_history_seq_ = seq_before;
         moved = 0;
-        std::vector<LogPoint> points;  // log order; grouped by series below
-        int64_t max_seq = -1;
+        // The log rows' blobs back to back, read straight into one buffer, and their runs in log
+        // order (grouped by series below). Runs, not points: a run spans a series' steps in one
+        // commit. Both buffers are megabytes, mapped with huge pages (base/huge_pages.h).
+        struct LogRow {
+          int64_t seq, format;
+          size_t bytes;
+        };
+        std::vector<LogRow> log_rows;
+        size_t total_bytes = 0;
         {
+          // length() of a blob comes from the record header: the blobs are not read here.
           Result<Statement> rows =
-              db_->Prepare("SELECT seq, format, count, points FROM history_log ORDER BY seq LIMIT ?1");
+              db_->Prepare("SELECT seq, format, length(points) FROM history_log ORDER BY seq LIMIT ?1");
           if (!rows.ok()) return rows.status();
           rows->Bind(1, max_log_rows);
           PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
-            max_seq = row.Int(0);
-            points.reserve(points.size() + static_cast<size_t>(std::max<int64_t>(0, row.Int(2))));
-            return ForEachLogRun(max_seq, row.Int(1), row.BlobView(3),
-                                 [&](int64_t series, int64_t first, const char* values, size_t count) {
-                                   for (size_t i = 0; i < count; ++i)
-                                     points.push_back({series, first + static_cast<int64_t>(i), ValueAt(values, i)});
-                                   moved += static_cast<int64_t>(count);
-                                 });
+            log_rows.push_back({row.Int(0), row.Int(1), static_cast<size_t>(row.Int(2))});
+            total_bytes += log_rows.back().bytes;
+            return Status::Ok();
           }));
         }
-        if (max_seq < 0) return Status::Ok();
-        // A sort instead of a map of per-series vectors (a tree walk per point was the top of the
-        // writer's profile). Stable: a series' points keep log order, so a later point still wins.
-        std::stable_sort(points.begin(), points.end(),
-                         [](const LogPoint& a, const LogPoint& b) { return a.series < b.series; });
-        Result<Statement> insert = db_->Prepare(
-            "INSERT INTO history(series, seq, min_step, max_step, count, format, points) "
-            "VALUES (?1, ?2, ?3, ?4, ?5, 2, ?6)");
-        if (!insert.ok()) return insert.status();
-        for (size_t begin = 0, end = 0; begin < points.size(); begin = end) {
-          while (end < points.size() && points[end].series == points[begin].series) ++end;
-          PLIMSOLL_RETURN_IF_ERROR(WriteHistoryRows(*insert, points[begin].series,
-                                                    std::span<const LogPoint>(points).subspan(begin, end - begin)));
+        if (log_rows.empty()) return Status::Ok();
+        const int64_t max_seq = log_rows.back().seq;
+        HugeBuffer log_bytes(total_bytes);
+        std::vector<LogRun, HugePageAllocator<LogRun>> runs;
+        runs.reserve(total_bytes / (sizeof(double) + 3) + 1);  // a run is at least 3 header bytes and one value
+        size_t at = 0;
+        for (const LogRow& row : log_rows) {
+          PLIMSOLL_RETURN_IF_ERROR(db_->ReadBlob("history_log", "points", row.seq, {log_bytes.data() + at, row.bytes}));
+          const std::string_view blob(log_bytes.data() + at, row.bytes);
+          PLIMSOLL_RETURN_IF_ERROR(ForEachLogRun(row.seq, row.format, blob,
+                                                 [&](int64_t series, int64_t first, const char* values, size_t count) {
+                                                   runs.push_back({series, first, count,
+                                                                   static_cast<size_t>(values - log_bytes.data())});
+                                                   moved += static_cast<int64_t>(count);
+                                                 }));
+          at += row.bytes;
         }
+        // Stable: a series' runs keep log order, so a later value for a step still wins on read.
+        std::stable_sort(runs.begin(), runs.end(), [](const LogRun& a, const LogRun& b) { return a.series < b.series; });
+        // A new generation: its rows sort after every stored row (key gen, series, seq), so the
+        // inserts append to the table instead of touching every series' pages.
+        Result<int64_t> gen = db_->QueryInt("SELECT coalesce(max(gen), 0) + 1 FROM history_generations");
+        if (!gen.ok()) return gen.status();
+        Result<Statement> insert = db_->Prepare(
+            "INSERT INTO history(gen, series, seq, min_step, max_step, count, format, points) "
+            "VALUES (?1, ?2, ?3, ?4, ?5, ?6, 2, ?7)");
+        if (!insert.ok()) return insert.status();
+        for (size_t begin = 0, end = 0; begin < runs.size(); begin = end) {
+          while (end < runs.size() && runs[end].series == runs[begin].series) ++end;
+          PLIMSOLL_RETURN_IF_ERROR(WriteHistoryRows(*insert, *gen, runs[begin].series,
+                                                    std::span<const LogRun>(runs).subspan(begin, end - begin),
+                                                    std::string_view(log_bytes.data(), log_bytes.size())));
+        }
+        Result<Statement> generation =
+            db_->Prepare("INSERT INTO history_generations(gen, points, compacted_ms) VALUES (?1, ?2, ?3)");
+        if (!generation.ok()) return generation.status();
+        PLIMSOLL_RETURN_IF_ERROR(generation->Bind(1, *gen).Bind(2, moved).Bind(3, options_.clock->WallMillis()).Run());
         Result<Statement> seq = db_->Prepare("UPDATE history_seq SET next_seq = ?1");
         if (!seq.ok()) return seq.status();
         PLIMSOLL_RETURN_IF_ERROR(seq->Bind(1, next_history_seq_).Run());
@@ -635,6 +693,9 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
   }
   log_points_ = std::max<int64_t>(0, log_points_ - moved);
   ++counters_.compactions;
+  const int64_t micros = (options_.clock->MonotonicNanos() - start) / 1000;
+  counters_.compaction_micros += micros;
+  counters_.max_compaction_micros = std::max(counters_.max_compaction_micros, micros);
   return Status::Ok();
 }
 
@@ -839,29 +900,28 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
                            });
     }));
   }
-  // Compacted rows are keyed (series, max_step, seq), so the rows a window needs are found by
-  // range on max_step without reading the series' older rows; blobs are read only for them.
+  // Compacted rows are clustered by generation (key gen, series, seq): one probe per generation
+  // finds the series' rows and their step ranges; blobs are read only for the rows needed.
   struct Range {
-    int64_t seq, min_step, max_step;
+    int64_t gen, seq, min_step, max_step;
   };
-  auto ranges = [&](const char* where, int64_t a, int64_t b) -> Result<std::vector<Range>> {
-    Result<Statement> rows =
-        db_->Prepare(std::string("SELECT seq, min_step, max_step FROM history WHERE series = ?1 AND ") + where);
+  std::vector<Range> stored;
+  {
+    Result<Statement> rows = db_->Prepare(
+        "SELECT h.gen, h.seq, h.min_step, h.max_step FROM history_generations g CROSS JOIN history h "
+        "ON h.gen = g.gen AND h.series = ?1");
     if (!rows.ok()) return rows.status();
-    rows->Bind(1, *id).Bind(2, a).Bind(3, b);
-    std::vector<Range> out;
+    rows->Bind(1, *id);
     PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
-      out.push_back({row.Int(0), row.Int(1), row.Int(2)});
+      stored.push_back({row.Int(0), row.Int(1), row.Int(2), row.Int(3)});
       return Status::Ok();
     }));
-    return out;
-  };
-  Result<Statement> blob = db_->Prepare(
-      "SELECT format, points FROM history WHERE series = ?1 AND max_step = ?2 AND seq = ?3");
+  }
+  Result<Statement> blob = db_->Prepare("SELECT format, points FROM history WHERE gen = ?1 AND series = ?2 AND seq = ?3");
   if (!blob.ok()) return blob.status();
   // Calls visit(step, value) for every point of one row.
   auto read_row = [&](const Range& r, auto visit) -> Status {
-    blob->Bind(1, *id).Bind(2, r.max_step).Bind(3, r.seq);
+    blob->Bind(1, r.gen).Bind(2, *id).Bind(3, r.seq);
     Result<bool> found = blob->Step();
     Status status = found.ok() ? Status::Ok() : found.status();
     if (status.ok() && *found) {
@@ -878,46 +938,34 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
   // max_step is a stored point), or a point inside a row that reaches past it.
   int64_t last = INT64_MIN, earliest = INT64_MAX;
   for (const auto& point : logged) last = std::max(last, point.first), earliest = std::min(earliest, point.first);
-  Result<std::vector<Range>> straddling = ranges("max_step > ?2 AND min_step <= ?3", through_step, through_step);
-  if (!straddling.ok()) return straddling.status();
-  for (const Range& r : *straddling) {
-    PLIMSOLL_RETURN_IF_ERROR(read_row(r, [&](int64_t step, double) {
-      if (step <= through_step) last = std::max(last, step);
-    }));
-  }
-  {
-    Result<Statement> newest = db_->Prepare("SELECT max(max_step) FROM history WHERE series = ?1 AND max_step <= ?2");
-    if (!newest.ok()) return newest.status();
-    newest->Bind(1, *id).Bind(2, through_step);
-    Result<bool> row = newest->Step();
-    if (!row.ok()) return row.status();
-    if (*row && !newest->IsNull(0)) last = std::max(last, newest->Int(0));
-    newest->Reset();
+  for (const Range& r : stored) {
+    if (r.max_step <= through_step) {
+      last = std::max(last, r.max_step);
+    } else if (r.min_step <= through_step) {
+      PLIMSOLL_RETURN_IF_ERROR(read_row(r, [&](int64_t step, double) {
+        if (step <= through_step) last = std::max(last, step);
+      }));
+    }
   }
   if (last == INT64_MIN) return slice;  // no history at all
   const int64_t window_start = last - static_cast<int64_t>(n) + 1;
-  Result<std::vector<Range>> window = ranges("max_step >= ?2 AND min_step <= ?3", window_start, last);
-  if (!window.ok()) return window.status();
-  {
+  std::vector<Range> window;
+  for (const Range& r : stored) {
     // Rows wholly before the window only tell whether the series' history starts before it.
-    Result<Statement> older =
-        db_->Prepare("SELECT EXISTS (SELECT 1 FROM history WHERE series = ?1 AND max_step < ?2)");
-    if (!older.ok()) return older.status();
-    older->Bind(1, *id).Bind(2, window_start);
-    Result<bool> row = older->Step();
-    if (!row.ok()) return row.status();
-    if (*row && older->Int(0) != 0) earliest = std::min(earliest, window_start);
-    older->Reset();
+    if (r.max_step < window_start) earliest = std::min(earliest, window_start);
+    if (r.max_step >= window_start && r.min_step <= last) {
+      window.push_back(r);
+      earliest = std::min(earliest, r.min_step);
+    }
   }
-  for (const Range& r : *window) earliest = std::min(earliest, r.min_step);
   const int64_t start = std::max(window_start, earliest);
   slice.first_step = start;
   slice.values.assign(static_cast<size_t>(last - start + 1), kNoValue);
   auto place = [&](int64_t step, double value) {
     if (step >= start && step <= last) slice.values[static_cast<size_t>(step - start)] = value;
   };
-  std::sort(window->begin(), window->end(), [](const Range& a, const Range& b) { return a.seq < b.seq; });
-  for (const Range& r : *window) PLIMSOLL_RETURN_IF_ERROR(read_row(r, place));  // a later row wins
+  std::sort(window.begin(), window.end(), [](const Range& a, const Range& b) { return a.seq < b.seq; });
+  for (const Range& r : window) PLIMSOLL_RETURN_IF_ERROR(read_row(r, place));  // a later row wins
   for (const auto& [step, value] : logged) place(step, value);
   return slice;
 }
@@ -944,6 +992,9 @@ Result<std::unique_ptr<Store>> Store::Open(StoreOptions options) {
   options.dead_letter_max_bytes = Clamp(options.dead_letter_max_bytes, 16, 1 << 20);
   options.history_chunk_points = Clamp(options.history_chunk_points, 16, 65'536);
   options.history_compact_points = std::max<int64_t>(options.history_compact_points, 1000);
+  if (options.page_bytes < 512 || options.page_bytes > 65'536 || !std::has_single_bit(static_cast<unsigned>(options.page_bytes)))
+    return Status::InvalidArgument("store page_bytes " + std::to_string(options.page_bytes) +
+                                   " is not a power of two from 512 to 65536");
   options.cache_kib = Clamp(options.cache_kib, 64, 16 * 1024 * 1024);
   options.wal_autocheckpoint_pages = Clamp(options.wal_autocheckpoint_pages, 0, 1 << 24);
 
@@ -959,6 +1010,8 @@ Result<std::unique_ptr<Store>> Store::Open(StoreOptions options) {
   sqlite3_busy_timeout(conn.raw(), options.busy_timeout_ms);
   std::string pragmas = "PRAGMA cache_size = -" + std::to_string(options.cache_kib) + "; PRAGMA temp_store = MEMORY;";
   if (!options.read_only) {
+    // Before journal_mode: a WAL file fixes the page size. A no-op on a file that has tables.
+    pragmas = "PRAGMA page_size = " + std::to_string(options.page_bytes) + "; " + pragmas;
     pragmas += " PRAGMA journal_mode = WAL; PRAGMA synchronous = " + std::string(SynchronousName(options.synchronous)) +
                "; PRAGMA wal_autocheckpoint = " + std::to_string(options.wal_autocheckpoint_pages) + ";";
   }

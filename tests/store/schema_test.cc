@@ -207,6 +207,10 @@ TEST_CASE("a version 4 store's history rows read back after the move to step-key
   store.reset();
   auto db = RawOpen(dir.File("store.db"));
   CHECK(Query(*db, "SELECT min(seq) FROM history WHERE max_step = 12 AND count = 1") == 2);
+  // Version 6 put the rows from before it into generation 0 and the compaction above into 1.
+  CHECK(Query(*db, "SELECT count(*) FROM history WHERE gen = 0") == 2);
+  CHECK(Query(*db, "SELECT gen FROM history WHERE max_step = 12 AND count = 1") == 1);
+  CHECK(Query(*db, "SELECT points FROM history_generations WHERE gen = 0") == 4);
 }
 
 TEST_CASE("a failing migration step leaves the previous version intact", "[store]") {

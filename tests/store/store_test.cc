@@ -378,6 +378,11 @@ TEST_CASE("history tail returns the last points across log and chunks, gaps as N
   check_a(500);
   // 100 points in rows of at most 16 values: 35 from the first compaction (16 + 16 + 3), 64 from the second.
   CHECK(Count(dir.File("store.db"), "history WHERE series = (SELECT id FROM series WHERE name = 'a')") == 7);
+  // Each compaction is a generation of its own; a later one's rows sort after every earlier row.
+  CHECK(Count(dir.File("store.db"), "history_generations") == 2);
+  CHECK(Count(dir.File("store.db"), "history WHERE gen = 2 AND seq < (SELECT max(seq) FROM history WHERE gen = 1)") ==
+        0);
+  CHECK(Count(dir.File("store.db"), "history_generations WHERE gen = 1 AND points = 35 + 10") == 1);  // a's and b's
   Result<HistorySlice> b = store->HistoryTail("b", 4);
   REQUIRE(b.ok());
   CHECK(b->first_step == 6);
@@ -573,6 +578,34 @@ TEST_CASE("store options are validated and clamped at open", "[store]") {
   CHECK(store->options().busy_retries == 0);
   StoreOptions empty;
   CHECK(Store::Open(empty).status().code() == StatusCode::kInvalidArgument);
+}
+
+TEST_CASE("a new store file gets the configured page size and an existing file keeps its own", "[store]") {
+  TempDir dir;
+  auto page_size = [&](const std::string& file) {
+    Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(file, SQLITE_OPEN_READONLY);
+    REQUIRE(db.ok());
+    Result<int64_t> size = (*db)->QueryInt("PRAGMA page_size");
+    REQUIRE(size.ok());
+    return *size;
+  };
+  StoreOptions options = TestOptions(dir);
+  CHECK(options.page_bytes == 16384);  // the documented default
+  OpenOrDie(options).reset();
+  CHECK(page_size(dir.File("store.db")) == 16384);
+  options.page_bytes = 4096;  // ignored: the file exists
+  auto store = OpenOrDie(options);
+  REQUIRE(store->Commit(FullBatch(3, 1, true, 1)).ok());
+  store.reset();
+  CHECK(page_size(dir.File("store.db")) == 16384);
+  options.path = dir.File("small-pages.db");
+  OpenOrDie(options).reset();
+  CHECK(page_size(options.path) == 4096);
+  options.page_bytes = 3000;
+  Result<std::unique_ptr<Store>> bad = Store::Open(options);
+  REQUIRE_FALSE(bad.ok());
+  CHECK(bad.status().code() == StatusCode::kInvalidArgument);
+  CHECK(bad.status().message().find("page_bytes 3000") != std::string::npos);
 }
 
 }  // namespace

@@ -66,14 +66,23 @@ struct StoreOptions {
   // Commit moves the history log into per-series rows once it holds this many points
   // (clamped to >= 1000). Higher: fewer, larger rows per series and less per-series overhead per
   // point, longer pauses at compaction and slower history reads (a read scans the whole log).
-  // A compaction costs about one row insert per series plus the pages those rows touch, so at
-  // 100k series a small log pays that per few points. 3M points of the series-grouped log are
-  // ~25 MB, as many bytes as the 1M-point log of schema 2-3 (24 bytes a point) that reads scanned.
+  // A compaction costs about one row insert per series (appended: rows are clustered by
+  // compaction generation), so at 100k series a small log pays that per few points. 3M points of
+  // the series-grouped log are ~25 MB, as many bytes as the 1M-point log of schema 2-3 (24 bytes a
+  // point) that reads scanned.
   int64_t history_compact_points = 3'000'000;
+  // SQLite page size (bytes, a power of two in 512..65536) for a NEW store file; an existing
+  // file keeps the size it was created with. 16 KiB instead of SQLite's 4 KiB: a group commit of
+  // 100k states or a history blob of megabytes writes a quarter of the WAL frames (each a system
+  // call and a checksum), which took the commit of 100k states from ~140 to ~25 ms in a
+  // measurement on this project's 2-core VM (DEVELOPERS.md, "Store figures"). Larger pages cost
+  // more bytes per commit when few rows change.
+  int page_bytes = 16 * 1024;
   // SQLite page cache (KiB). Bigger keeps more of the state table in memory.
   int cache_kib = 64 * 1024;
-  // WAL pages before SQLite checkpoints into the main file (SQLite's default is 1000).
-  // Larger: fewer checkpoint pauses, bigger -wal file and slower recovery after a crash.
+  // WAL pages before SQLite checkpoints into the main file (SQLite's default is 1000; with
+  // 16 KiB pages 4000 pages are 64 MiB). Larger: fewer checkpoint pauses, bigger -wal file and
+  // slower recovery after a crash.
   int wal_autocheckpoint_pages = 4000;
   Clock* clock = SystemClock();  // measures commit durations; never null
 };
@@ -95,6 +104,8 @@ struct StoreCounters {
   uint64_t compaction_failures = 0;  // failed compactions (the log is kept; retried later)
   int64_t last_commit_micros = 0;    // duration of the last successful Commit
   int64_t max_commit_micros = 0;
+  int64_t compaction_micros = 0;      // total time spent in successful compactions
+  int64_t max_compaction_micros = 0;  // the longest one (the writer commits nothing meanwhile)
   StatusCode last_error = StatusCode::kOk;  // code of the most recent failure
 };
 
