@@ -435,12 +435,13 @@ Result<Config> Build(const toml::table& root, std::string_view origin) {
   PLIMSOLL_RETURN_IF_ERROR(section("store", t));
   {
     TableReader r(t, "store", origin);
-    PLIMSOLL_RETURN_IF_ERROR(r.CheckKeys({"path", "synchronous", "commit_ms", "commit_records"}));
+    PLIMSOLL_RETURN_IF_ERROR(r.CheckKeys({"path", "synchronous", "commit_ms", "commit_records", "checkpoint_ms"}));
     PLIMSOLL_RETURN_IF_ERROR(r.String("path", c.store.path));
     if (c.store.path.empty()) return r.Error("path", "must not be empty");
     PLIMSOLL_RETURN_IF_ERROR(r.Enum("synchronous", c.store.synchronous, kSyncLevels));
     PLIMSOLL_RETURN_IF_ERROR(r.Int("commit_ms", c.store.commit_ms, 1, 60'000));
     PLIMSOLL_RETURN_IF_ERROR(r.Int("commit_records", c.store.commit_records, 1, 10'000'000));
+    PLIMSOLL_RETURN_IF_ERROR(r.Int("checkpoint_ms", c.store.checkpoint_ms, 0, 3'600'000));
   }
 
   PLIMSOLL_RETURN_IF_ERROR(section("band", t));

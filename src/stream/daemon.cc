@@ -56,6 +56,10 @@ struct Pending {
   // install is not re-derived from the input, so a restart must not start before it).
   bool installed_since_checkpoint = false;
   std::vector<uint32_t> history_slot;  // ToStoreBatch scratch by SeriesId, kNoSlot between calls
+  // Batches done with, kept for their buffers: the next TakeBatch and ToStoreBatch reuse them
+  // instead of mapping megabytes afresh at every commit.
+  EngineBatch spare_engine_batch;
+  store::CommitBatch spare_commit_batch;
 
   void AddDirty(std::span<const SeriesId> ids) {
     for (SeriesId id : ids) {
@@ -189,7 +193,8 @@ namespace {
 // Moves only the dead letters' payloads out of `batch`.
 store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_t now_ms,
                                 std::span<const StreamId> streams, Pending& pending) {
-  store::CommitBatch out;
+  store::CommitBatch out = std::move(pending.spare_commit_batch);
+  out.Clear();
   const auto name = [&](SeriesId id) -> const std::string& { return engine.SeriesName(id); };
   for (const EngineEvent& e : batch.events) {
     if (e.kind == EventKind::kCreated)
@@ -322,6 +327,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       Status published = sink->Publish(durable);
       if (!published.ok()) counters_.sink_errors.fetch_add(1, std::memory_order_relaxed);
     }
+    im.pending.spare_commit_batch = std::move(durable);  // its buffers serve the next commit
   };
   const auto take_durable = [&] {
     if (std::optional<store::CommitBatch> durable = im.writer->TakeDurable()) handle_durable(std::move(*durable));
@@ -331,7 +337,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
   // what an install changes (model, catch-up flags and alerts, states) goes to the next commit,
   // which is then a checkpoint. A crash in between finds the series as before the install.
   const auto submit = [&](bool checkpoint) {
-    EngineBatch taken = engine_->TakeBatch();
+    EngineBatch taken = engine_->TakeBatch(std::move(im.pending.spare_engine_batch));
     Pending& pending = im.pending;
     pending.AddDirty(taken.dirty);
     pending.records += uncommitted;
@@ -354,6 +360,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       std::move(refit_events.begin(), refit_events.end(), std::back_inserter(pending.events));
     }
     if (!batch.empty()) im.writer->Submit(std::move(batch));
+    pending.spare_engine_batch = std::move(taken);
     uncommitted = 0;
     last_commit_ns = now_ns;
   };
@@ -527,6 +534,7 @@ DaemonOptions DaemonOptionsFromConfig(const Config& config) {
   DaemonOptions out;
   out.commit_ms = config.store.commit_ms;
   out.commit_records = static_cast<size_t>(config.store.commit_records);
+  out.checkpoint_ms = config.store.checkpoint_ms;
   out.max_uncommitted_records = std::max<size_t>(out.commit_records * 20, 100'000);
   // A file is a replay: its own times drive bucket closing, so reruns give identical results.
   out.event_time = config.source.kind == SourceKind::kFile;

@@ -549,9 +549,9 @@ void Engine::AdvanceClock(int64_t now_ms) {
   }
 }
 
-EngineBatch Engine::TakeBatch() {
-  EngineBatch out = std::move(impl_->batch);
-  impl_->batch = EngineBatch();
+EngineBatch Engine::TakeBatch(EngineBatch recycled) {
+  recycled.Clear();
+  EngineBatch out = std::exchange(impl_->batch, std::move(recycled));
   // The next batch is most likely as big as this one: size it once instead of growing it.
   impl_->batch.history.reserve(out.history.size());
   impl_->batch.dirty.reserve(out.dirty.size());

@@ -1,4 +1,5 @@
 #include "plimsoll/stream/config.h"
+#include "plimsoll/stream/daemon.h"
 
 #include <fstream>
 #include <string>
@@ -43,6 +44,7 @@ TEST_CASE("empty config gives the documented defaults", "[stream]") {
   CHECK(c.store.synchronous == SyncLevel::kNormal);
   CHECK(c.store.commit_ms == 100);
   CHECK(c.store.commit_records == 50000);
+  CHECK(c.store.checkpoint_ms == 5000);
   CHECK(c.band.level == 0.99);
   CHECK(c.band.breach_run == 3);
   CHECK(c.band.breach_window == 0);
@@ -201,6 +203,7 @@ TEST_CASE("wrong value types name the key and both types", "[stream]") {
 
 TEST_CASE("integer ranges name the key", "[stream]") {
   CHECK(Error("[store]\ncommit_ms = 0\n") == "t.toml:2: store.commit_ms: 0 is not in 1..60000");
+  CHECK(Error("[store]\ncheckpoint_ms = -1\n") == "t.toml:2: store.checkpoint_ms: -1 is not in 0..3600000");
   CHECK(Error("[band]\nbreach_run = 0\n") == "t.toml:2: band.breach_run: 0 is not in 1..1000");
   CHECK(Error("[[profile]]\nperiod = 0\n") == "t.toml:2: profile[0].period: 0 is not in 1..100000");
   CHECK(Error("[refit]\nthreads = -1\n") == "t.toml:2: refit.threads: -1 is not in 0..256");
@@ -371,6 +374,7 @@ TEST_CASE("shipped example config loads and states the defaults", "[stream]") {
   CHECK(c.store.synchronous == d.store.synchronous);
   CHECK(c.store.commit_ms == d.store.commit_ms);
   CHECK(c.store.commit_records == d.store.commit_records);
+  CHECK(c.store.checkpoint_ms == d.store.checkpoint_ms);
   CHECK(c.band.level == d.band.level);
   CHECK(c.band.breach_run == d.band.breach_run);
   CHECK(c.band.breach_window == d.band.breach_window);
@@ -406,4 +410,22 @@ TEST_CASE("shipped example config loads and states the defaults", "[stream]") {
   CHECK(last.refit_max_age_ms == dp.refit_max_age_ms);
 }
 
+}  // namespace plimsoll::stream
+
+namespace plimsoll::stream {
+namespace {
+
+TEST_CASE("the store's commit and checkpoint keys reach the daemon options", "[stream]") {
+  const DaemonOptions defaults = DaemonOptionsFromConfig(Parse(""));
+  CHECK(defaults.commit_ms == 100);
+  CHECK(defaults.commit_records == 50'000);
+  CHECK(defaults.checkpoint_ms == 5'000);
+  const DaemonOptions set =
+      DaemonOptionsFromConfig(Parse("[store]\ncommit_ms = 250\ncommit_records = 9000\ncheckpoint_ms = 0\n"));
+  CHECK(set.commit_ms == 250);
+  CHECK(set.commit_records == 9'000);
+  CHECK(set.checkpoint_ms == 0);  // every commit a checkpoint
+}
+
+}  // namespace
 }  // namespace plimsoll::stream

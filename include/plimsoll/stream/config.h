@@ -74,6 +74,9 @@ struct StoreOptions {
   SyncLevel synchronous = SyncLevel::kNormal;
   int64_t commit_ms = 100;           // group commit at least this often (ms): latency vs. throughput
   int64_t commit_records = 50'000;   // ... or after this many accepted records, whichever is first
+  // States and source positions are written at least this often (ms); commits in between carry
+  // history, flags and alerts. Longer: less writing, more input re-read after a crash. 0: every commit.
+  int64_t checkpoint_ms = 5'000;
 };
 
 // [band]: defaults for every profile.

@@ -41,13 +41,14 @@ struct DaemonOptions {
   // series, which a restart from the checkpoint re-derives identically (all idempotent); events
   // and dead letters wait for the checkpoint. Longer: fewer state writes, more input re-read
   // after a crash, positions (and Kafka's advisory commits) acknowledged later.
-  // 0 (the default): every group commit is a checkpoint. With 1000 the Kafka SIGKILL test
-  // (tests/cli/watch_kafka_integration_test.cc) lost 6 of 100 flags before refit installs were
-  // moved after the commit's encoding; since then it and the file crash trials pass with 1000.
-  int64_t checkpoint_ms = 0;
+  // 5000 (the default): a state costs about as much to write as 25 history points, and with
+  // 100k busy series writing every state at every group commit took most of the writer's time
+  // (DEVELOPERS.md, "Store figures"). The file and Kafka SIGKILL tests pass with 1000 and 5000.
+  // 0: every group commit is a checkpoint.
+  int64_t checkpoint_ms = 5000;
   // ... and whenever this many records per changed series arrived since the last checkpoint
   // (checkpointing few busy series is cheap and keeps positions fresh). 0: only by time.
-  size_t checkpoint_records_per_state = 16;
+  size_t checkpoint_records_per_state = 64;
   size_t poll_records = 4096;          // records per Poll call
   int poll_timeout_ms = 20;            // how long an idle Poll waits
   // Aggregated buckets close when the bucket clock passes their end + allowed lateness. The

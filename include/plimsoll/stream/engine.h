@@ -111,6 +111,12 @@ struct EngineBatch {
   bool empty() const {
     return observations == 0 && dead_letters.empty() && events.empty() && models.empty() && dirty.empty();
   }
+  // Empties every list, keeping capacity.
+  void Clear() {
+    flags.clear(), alerts.clear(), history.clear(), dead_letters.clear(), events.clear(), models.clear();
+    dirty.clear();
+    observations = 0;
+  }
 };
 
 struct EngineOptions {
@@ -212,8 +218,10 @@ class Engine {
   // Closes aggregation buckets whose time has passed (silent count feeds yield zero steps).
   void AdvanceClock(int64_t now_ms);
 
-  // Moves the pending durable work out (the caller commits it).
-  EngineBatch TakeBatch();
+  // Moves the pending durable work out (the caller commits it). `recycled`: an earlier batch,
+  // done with, whose buffers the next batch reuses (its contents are dropped); a batch of
+  // hundreds of thousands of points is megabytes that would otherwise be mapped afresh each time.
+  EngineBatch TakeBatch(EngineBatch recycled = {});
 
   // Series whose model must be refitted (today: a non-positive value met a multiplicative form,
   // so the refit is restricted to additive forms), each once since the last call.
