@@ -213,6 +213,7 @@ StateSolver::StateSolver(const model::ModelSpec& spec, std::span<const double> y
   }
   residuals_.resize(static_cast<size_t>(n_obs_));
   for (auto* v : {&grad_log_mu_, &jr_, &t_level_, &t_trend_}) v->resize(pp);
+  padded_.assign(pp, 0.0);
   t_season_.resize(spec.has_season() ? pp * static_cast<size_t>(spec.period) : 0);
 }
 
@@ -756,6 +757,43 @@ void AddShiftedSums(const double* d, size_t m, const double* c, size_t n, double
   }
 }
 
+// J'w and J x for n rows of pp doubles (pp a multiple of 8, 64-byte aligned rows), 8-wide with
+// fused multiply-adds: J'w sums the rows in time order in two interleaved accumulator sets (even
+// and odd rows); J x sums each row's 8-wide partial products, then the lanes.
+__attribute__((target("avx512f"))) void RowsTransposedTimes(const double* rows, size_t n, size_t pp, const double* w,
+                                                            double* out) {
+  const size_t q = pp / 8;
+  __m512d even[4] = {}, odd[4] = {};
+  size_t t = 0;
+  for (; t + 1 < n; t += 2) {
+    const __m512d w0 = _mm512_set1_pd(w[t]), w1 = _mm512_set1_pd(w[t + 1]);
+    const double* r0 = rows + t * pp;
+    const double* r1 = r0 + pp;
+    for (size_t i = 0; i < q; ++i) {
+      even[i] = _mm512_fmadd_pd(w0, _mm512_load_pd(r0 + 8 * i), even[i]);
+      odd[i] = _mm512_fmadd_pd(w1, _mm512_load_pd(r1 + 8 * i), odd[i]);
+    }
+  }
+  for (; t < n; ++t) {
+    const __m512d w0 = _mm512_set1_pd(w[t]);
+    for (size_t i = 0; i < q; ++i) even[i] = _mm512_fmadd_pd(w0, _mm512_load_pd(rows + t * pp + 8 * i), even[i]);
+  }
+  for (size_t i = 0; i < q; ++i) _mm512_storeu_pd(out + 8 * i, _mm512_add_pd(even[i], odd[i]));
+}
+
+__attribute__((target("avx512f"))) void RowsTimes(const double* rows, size_t n, size_t pp, const double* x,
+                                                  double* out) {
+  const size_t q = pp / 8;
+  Oct xs[4];
+  for (size_t i = 0; i < q; ++i) __builtin_memcpy(&xs[i], x + 8 * i, sizeof(Oct));
+  for (size_t t = 0; t < n; ++t) {
+    const Oct* row = reinterpret_cast<const Oct*>(rows + t * pp);
+    Oct acc = row[0] * xs[0];
+    for (size_t i = 1; i < q; ++i) acc = _mm512_fmadd_pd(row[i], xs[i], acc);
+    out[t] = ((acc[0] + acc[1]) + (acc[2] + acc[3])) + ((acc[4] + acc[5]) + (acc[6] + acc[7]));
+  }
+}
+
 }  // namespace
 
 double StateSolver::MuObjective(const double* mu, double* inv_mu, double* resid) const {
@@ -858,12 +896,23 @@ double StateSolver::SolveAffineMu(const model::Params& params, double& level, do
       factor.compute(h);
       refresh = false;
     }
-    const Eigen::VectorXd g = jmu.transpose() * w;
+    Eigen::VectorXd g(p);
+    if (wide_ && pp <= 32) {
+      RowsTransposedTimes(jmu.data(), static_cast<size_t>(len), pp, weights_.data(), padded_.data());
+      g = Eigen::Map<const Eigen::VectorXd>(padded_.data(), p);
+    } else {
+      g.noalias() = jmu.transpose() * w;
+    }
     const Eigen::VectorXd delta = -factor.solve(g);
     if (!delta.allFinite()) break;
     const double predicted = -0.5 * n / sse * g.dot(delta);
     if (!(predicted > kStepTolerance * std::fabs(f))) break;
-    jd.noalias() = jmu * delta;
+    if (wide_ && pp <= 32) {
+      std::copy(delta.begin(), delta.end(), padded_.begin());  // the pad entries stay 0
+      RowsTimes(jmu.data(), static_cast<size_t>(len), pp, padded_.data(), jd_.data());
+    } else {
+      jd.noalias() = jmu * delta;
+    }
     if (shifted_) jd.array() /= Eigen::Map<const Eigen::ArrayXd>(row_scale_.data(), len);
     double f_new = f;
     const double lambda = Backtrack(f, f_new, [&](double step) -> double {

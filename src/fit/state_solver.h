@@ -142,6 +142,7 @@ class StateSolver {
   // row_scale_: d r / d mu per step at the last Gram refresh (shifted_).
   std::vector<double> mu0_, mu_, trial_mu_, jd_, weights_, inv_mu_, trial_inv_mu_, resid_, trial_resid_, row_scale_;
   AlignedVector scaled_;              // n_obs x pp: rows of J_mu scaled by d residual / d mu
+  std::vector<double> padded_;        // pp: a step in the free coordinates, zero-padded; J_mu'w
   // Additive season estimated, no gaps: seasonal columns are shifts of one (see SolveShifted).
   bool shifted_ = false;
   size_t lag_width_ = 0;              // m rounded up to a multiple of 4
