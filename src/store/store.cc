@@ -220,6 +220,9 @@ class Store::Impl {
   Status Load();
   Status Commit(const CommitBatch& batch);
   Status CompactHistory(int64_t max_log_rows);
+  Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows);
+  Status ApplyCompaction(const PreparedCompaction& prepared);
+  bool compact_in_commit_ = true;
   Status ForEachSeries(const std::function<Status(const StoredSeries&)>& visit);
   Result<StoredSeries> GetSeries(std::string_view name);
   Result<std::vector<StoredSeries>> ListSeries(size_t limit, std::string_view after_name);
@@ -249,8 +252,9 @@ class Store::Impl {
   Status CountRow(Tally& tally);
   Result<int64_t> Resolve(std::string_view name, std::string_view what) const;
   Result<int64_t> LookupSeries(std::string_view name);
-  Status WriteHistoryRows(Statement& insert, int64_t gen, int64_t series, std::span<const LogRun> runs,
-                          std::string_view log_bytes);
+  void AppendHistoryRows(PreparedCompaction& out, int64_t series, std::span<const LogRun> runs,
+                         std::string_view log_bytes) const;
+  Result<PreparedCompaction> ReadAndRegroupLog(int64_t max_log_rows);
 
   // Series name -> integer key for the writer; rolled back with the transaction that added names.
   std::unordered_map<std::string, int64_t, StringHash, std::equal_to<>> series_ids_;
@@ -258,8 +262,6 @@ class Store::Impl {
   std::map<std::pair<std::string, int32_t>, int64_t, std::less<>> positions_;
   int64_t log_points_ = 0;  // points in history_log awaiting compaction
   int64_t next_history_seq_ = 0;  // history.seq of the next row compaction writes (history_seq.next_seq)
-  std::string row_buffer_;  // WriteHistoryRows
-  std::string run_values_;  // WriteHistoryRows: values of the run being built
   std::string pack_buffer_;
   std::vector<int64_t> history_keys_;     // WriteBatch: distinct series keys of batch.history
   std::vector<uint32_t> history_slots_;   // WriteBatch: batch.history.series index -> history_keys_ index
@@ -279,6 +281,7 @@ Status Store::Impl::Load() {
   Result<int64_t> pending = db_->QueryInt("SELECT coalesce(sum(count), 0) FROM history_log");
   if (!pending.ok()) return pending.status();
   log_points_ = *pending;
+  counters_.log_points = log_points_;
   Result<int64_t> seq = db_->QueryInt("SELECT next_seq FROM history_seq");
   if (!seq.ok()) return seq.status();
   next_history_seq_ = *seq;
@@ -556,7 +559,8 @@ Status Store::Impl::Commit(const CommitBatch& batch) {
   counters_.dead_letters += tally.dead;
   counters_.last_commit_micros = micros;
   counters_.max_commit_micros = std::max(counters_.max_commit_micros, micros);
-  if (log_points_ >= options_.history_compact_points) {
+  counters_.log_points = log_points_;
+  if (compact_in_commit_ && log_points_ >= options_.history_compact_points) {
     // The batch is already durable; a failed compaction keeps the log and is retried next time.
     Status compacted = CompactHistory(INT64_MAX);
     if (!compacted.ok()) spdlog::warn("store: history compaction failed: {}", compacted.ToString());
@@ -564,101 +568,137 @@ Status Store::Impl::Commit(const CommitBatch& batch) {
   return Status::Ok();
 }
 
-Status Store::Impl::WriteHistoryRows(Statement& insert, int64_t gen, int64_t series, std::span<const LogRun> runs,
-                                     std::string_view log_bytes) {
+void Store::Impl::AppendHistoryRows(PreparedCompaction& out, int64_t series, std::span<const LogRun> runs,
+                                    std::string_view log_bytes) const {
   // Rows of at most history_chunk_points values, each a sequence of runs; a log run that
   // continues the previous one (the next step) extends it, so a series' steps from many commits
   // become one run. Rows are never rewritten: later compactions add rows of a later generation.
   const auto cap = static_cast<size_t>(options_.history_chunk_points);
-  row_buffer_.clear();
-  run_values_.clear();
-  int64_t run_first = 0, min_step = INT64_MAX, max_step = INT64_MIN;
-  size_t run_count = 0, row_values = 0;
+  std::string run_values;  // values of the run being built
+  PreparedCompaction::Row row{series, INT64_MAX, INT64_MIN, 0, out.bytes.size(), 0};
+  int64_t run_first = 0;
+  size_t run_count = 0;
   auto close_run = [&] {
     if (run_count == 0) return;
-    PutRunHeader(row_buffer_, std::nullopt, run_first, run_count);
-    row_buffer_.append(run_values_);
-    run_values_.clear();
+    std::string header;
+    PutRunHeader(header, std::nullopt, run_first, run_count);
+    out.bytes.insert(out.bytes.end(), header.begin(), header.end());
+    out.bytes.insert(out.bytes.end(), run_values.begin(), run_values.end());
+    run_values.clear();
     run_count = 0;
   };
-  auto close_row = [&]() -> Status {
+  auto close_row = [&] {
     close_run();
-    if (row_values == 0) return Status::Ok();
-    insert.Bind(1, gen).Bind(2, series).Bind(3, next_history_seq_++).Bind(4, min_step).Bind(5, max_step);
-    insert.Bind(6, static_cast<int64_t>(row_values)).BindBlob(7, row_buffer_, Statement::Bytes::kBorrow);
-    Status status = insert.Run();
-    row_buffer_.clear();
-    row_values = 0, min_step = INT64_MAX, max_step = INT64_MIN;
-    return status;
+    if (row.count == 0) return;
+    row.bytes = out.bytes.size() - row.offset;
+    out.rows.push_back(row);
+    row = {series, INT64_MAX, INT64_MIN, 0, out.bytes.size(), 0};
   };
   for (const LogRun& r : runs) {
     for (size_t done = 0; done < r.count;) {
-      if (row_values == cap) PLIMSOLL_RETURN_IF_ERROR(close_row());
-      const size_t take = std::min(r.count - done, cap - row_values);
+      if (static_cast<size_t>(row.count) == cap) close_row();
+      const size_t take = std::min(r.count - done, cap - static_cast<size_t>(row.count));
       const int64_t first = r.first_step + static_cast<int64_t>(done);
       if (run_count == 0 || first != run_first + static_cast<int64_t>(run_count)) {
         close_run();
         run_first = first;
       }
-      run_values_.append(log_bytes.substr(r.offset + done * sizeof(double), take * sizeof(double)));
-      run_count += take, row_values += take, done += take;
-      min_step = std::min(min_step, first);
-      max_step = std::max(max_step, first + static_cast<int64_t>(take) - 1);
+      run_values.append(log_bytes.substr(r.offset + done * sizeof(double), take * sizeof(double)));
+      run_count += take, done += take;
+      row.count += static_cast<int64_t>(take);
+      row.min_step = std::min(row.min_step, first);
+      row.max_step = std::max(row.max_step, first + static_cast<int64_t>(take) - 1);
     }
   }
-  return close_row();
+  close_row();
 }
 
-Status Store::Impl::CompactHistory(int64_t max_log_rows) {
+Result<PreparedCompaction> Store::Impl::PrepareCompaction(int64_t max_log_rows) {
+  // One read transaction: the listed log rows and their blobs come from the same snapshot.
+  PLIMSOLL_RETURN_IF_ERROR(db_->Exec("BEGIN"));
+  Result<PreparedCompaction> prepared = ReadAndRegroupLog(max_log_rows);
+  IgnoreError(db_->Exec("COMMIT"));  // a read transaction has nothing to lose; the result is already whole
+  return prepared;
+}
+
+Result<PreparedCompaction> Store::Impl::ReadAndRegroupLog(int64_t max_log_rows) {
+  PreparedCompaction out;
+  // The log rows' blobs back to back, read straight into one buffer, and their runs in log
+  // order (grouped by series below). Runs, not points: a run spans a series' steps in one
+  // commit. Both buffers are megabytes, mapped with huge pages (base/huge_pages.h).
+  struct LogRow {
+    int64_t seq, format;
+    size_t bytes;
+  };
+  std::vector<LogRow> log_rows;
+  size_t total_bytes = 0;
+  {
+    // length() of a blob comes from the record header: the blobs are not read here.
+    Result<Statement> rows =
+        db_->Prepare("SELECT seq, format, length(points) FROM history_log ORDER BY seq LIMIT ?1");
+    if (!rows.ok()) return rows.status();
+    rows->Bind(1, max_log_rows);
+    PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
+      log_rows.push_back({row.Int(0), row.Int(1), static_cast<size_t>(row.Int(2))});
+      total_bytes += log_rows.back().bytes;
+      return Status::Ok();
+    }));
+  }
+  if (log_rows.empty()) return out;
+  out.first_log_seq = log_rows.front().seq;
+  out.last_log_seq = log_rows.back().seq;
+  out.log_rows = static_cast<int64_t>(log_rows.size());
+  HugeBuffer log_bytes(total_bytes);
+  std::vector<LogRun, HugePageAllocator<LogRun>> runs;
+  runs.reserve(total_bytes / (sizeof(double) + 3) + 1);  // a run is at least 3 header bytes and one value
+  size_t at = 0;
+  for (const LogRow& row : log_rows) {
+    PLIMSOLL_RETURN_IF_ERROR(db_->ReadBlob("history_log", "points", row.seq, {log_bytes.data() + at, row.bytes}));
+    const std::string_view blob(log_bytes.data() + at, row.bytes);
+    PLIMSOLL_RETURN_IF_ERROR(ForEachLogRun(row.seq, row.format, blob,
+                                           [&](int64_t series, int64_t first, const char* values, size_t count) {
+                                             runs.push_back({series, first, count,
+                                                             static_cast<size_t>(values - log_bytes.data())});
+                                             out.points += static_cast<int64_t>(count);
+                                           }));
+    at += row.bytes;
+  }
+  // Stable: a series' runs keep log order, so a later value for a step still wins on read.
+  std::stable_sort(runs.begin(), runs.end(), [](const LogRun& a, const LogRun& b) { return a.series < b.series; });
+  out.bytes.reserve(total_bytes);  // values move over one for one; run headers shrink or stay
+  const std::string_view all(log_bytes.data(), log_bytes.size());
+  for (size_t begin = 0, end = 0; begin < runs.size(); begin = end) {
+    while (end < runs.size() && runs[end].series == runs[begin].series) ++end;
+    AppendHistoryRows(out, runs[begin].series, std::span<const LogRun>(runs).subspan(begin, end - begin), all);
+  }
+  return out;
+}
+
+Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared) {
   if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
-  int64_t moved = 0;
+  if (prepared.empty()) return Status::Ok();
   const int64_t seq_before = next_history_seq_;
   const int64_t start = options_.clock->MonotonicNanos();
   Status status = RunTransaction(
       "history compaction",
       [&]() -> Status {
         next_history_seq_ = seq_before;
-        moved = 0;
-        // The log rows' blobs back to back, read straight into one buffer, and their runs in log
-        // order (grouped by series below). Runs, not points: a run spans a series' steps in one
-        // commit. Both buffers are megabytes, mapped with huge pages (base/huge_pages.h).
-        struct LogRow {
-          int64_t seq, format;
-          size_t bytes;
-        };
-        std::vector<LogRow> log_rows;
-        size_t total_bytes = 0;
         {
-          // length() of a blob comes from the record header: the blobs are not read here.
-          Result<Statement> rows =
-              db_->Prepare("SELECT seq, format, length(points) FROM history_log ORDER BY seq LIMIT ?1");
-          if (!rows.ok()) return rows.status();
-          rows->Bind(1, max_log_rows);
-          PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
-            log_rows.push_back({row.Int(0), row.Int(1), static_cast<size_t>(row.Int(2))});
-            total_bytes += log_rows.back().bytes;
-            return Status::Ok();
-          }));
+          // The prepared rows must still be the oldest log rows, all of them: a generation must
+          // not hold points older than a row left in the log (a later seq wins on read).
+          Result<Statement> check = db_->Prepare(
+              "SELECT count(*), coalesce(sum(count), 0), coalesce(min(seq), -1) FROM history_log WHERE seq <= ?1");
+          if (!check.ok()) return check.status();
+          check->Bind(1, prepared.last_log_seq);
+          Result<bool> row = check->Step();
+          if (!row.ok()) return row.status();
+          if (check->Int(0) != prepared.log_rows || check->Int(1) != prepared.points ||
+              check->Int(2) != prepared.first_log_seq) {
+            return Status::Aborted("prepared compaction of history_log rows " + std::to_string(prepared.first_log_seq) +
+                                   ".." + std::to_string(prepared.last_log_seq) +
+                                   " is stale: those are no longer the oldest log rows");
+          }
         }
-        if (log_rows.empty()) return Status::Ok();
-        const int64_t max_seq = log_rows.back().seq;
-        HugeBuffer log_bytes(total_bytes);
-        std::vector<LogRun, HugePageAllocator<LogRun>> runs;
-        runs.reserve(total_bytes / (sizeof(double) + 3) + 1);  // a run is at least 3 header bytes and one value
-        size_t at = 0;
-        for (const LogRow& row : log_rows) {
-          PLIMSOLL_RETURN_IF_ERROR(db_->ReadBlob("history_log", "points", row.seq, {log_bytes.data() + at, row.bytes}));
-          const std::string_view blob(log_bytes.data() + at, row.bytes);
-          PLIMSOLL_RETURN_IF_ERROR(ForEachLogRun(row.seq, row.format, blob,
-                                                 [&](int64_t series, int64_t first, const char* values, size_t count) {
-                                                   runs.push_back({series, first, count,
-                                                                   static_cast<size_t>(values - log_bytes.data())});
-                                                   moved += static_cast<int64_t>(count);
-                                                 }));
-          at += row.bytes;
-        }
-        // Stable: a series' runs keep log order, so a later value for a step still wins on read.
-        std::stable_sort(runs.begin(), runs.end(), [](const LogRun& a, const LogRun& b) { return a.series < b.series; });
         // A new generation: its rows sort after every stored row (key gen, series, seq), so the
         // inserts append to the table instead of touching every series' pages.
         Result<int64_t> gen = db_->QueryInt("SELECT coalesce(max(gen), 0) + 1 FROM history_generations");
@@ -667,22 +707,23 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
             "INSERT INTO history(gen, series, seq, min_step, max_step, count, format, points) "
             "VALUES (?1, ?2, ?3, ?4, ?5, ?6, 2, ?7)");
         if (!insert.ok()) return insert.status();
-        for (size_t begin = 0, end = 0; begin < runs.size(); begin = end) {
-          while (end < runs.size() && runs[end].series == runs[begin].series) ++end;
-          PLIMSOLL_RETURN_IF_ERROR(WriteHistoryRows(*insert, *gen, runs[begin].series,
-                                                    std::span<const LogRun>(runs).subspan(begin, end - begin),
-                                                    std::string_view(log_bytes.data(), log_bytes.size())));
+        for (const PreparedCompaction::Row& r : prepared.rows) {
+          insert->Bind(1, *gen).Bind(2, r.series).Bind(3, next_history_seq_++).Bind(4, r.min_step);
+          insert->Bind(5, r.max_step).Bind(6, r.count);
+          insert->BindBlob(7, std::string_view(prepared.bytes.data() + r.offset, r.bytes), Statement::Bytes::kBorrow);
+          PLIMSOLL_RETURN_IF_ERROR(insert->Run());
         }
         Result<Statement> generation =
             db_->Prepare("INSERT INTO history_generations(gen, points, compacted_ms) VALUES (?1, ?2, ?3)");
         if (!generation.ok()) return generation.status();
-        PLIMSOLL_RETURN_IF_ERROR(generation->Bind(1, *gen).Bind(2, moved).Bind(3, options_.clock->WallMillis()).Run());
+        PLIMSOLL_RETURN_IF_ERROR(
+            generation->Bind(1, *gen).Bind(2, prepared.points).Bind(3, options_.clock->WallMillis()).Run());
         Result<Statement> seq = db_->Prepare("UPDATE history_seq SET next_seq = ?1");
         if (!seq.ok()) return seq.status();
         PLIMSOLL_RETURN_IF_ERROR(seq->Bind(1, next_history_seq_).Run());
         Result<Statement> erase = db_->Prepare("DELETE FROM history_log WHERE seq <= ?1");
         if (!erase.ok()) return erase.status();
-        erase->Bind(1, max_seq);
+        erase->Bind(1, prepared.last_log_seq);
         return erase->Run();
       },
       [&] { next_history_seq_ = seq_before; });
@@ -691,10 +732,29 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
     counters_.last_error = status.code();
     return status;
   }
-  log_points_ = std::max<int64_t>(0, log_points_ - moved);
+  log_points_ = std::max<int64_t>(0, log_points_ - prepared.points);
+  counters_.log_points = log_points_;
   ++counters_.compactions;
   const int64_t micros = (options_.clock->MonotonicNanos() - start) / 1000;
   counters_.compaction_micros += micros;
+  counters_.max_compaction_micros = std::max(counters_.max_compaction_micros, micros);
+  return Status::Ok();
+}
+
+Status Store::Impl::CompactHistory(int64_t max_log_rows) {
+  if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
+  const int64_t start = options_.clock->MonotonicNanos();
+  Result<PreparedCompaction> prepared = PrepareCompaction(max_log_rows);
+  if (!prepared.ok()) {
+    ++counters_.compaction_failures;
+    counters_.last_error = prepared.status().code();
+    return prepared.status().WithContext("history compaction in '" + db_->path() + "'");
+  }
+  const int64_t before = counters_.compaction_micros;
+  PLIMSOLL_RETURN_IF_ERROR(ApplyCompaction(*prepared));
+  // Count the preparation too: here the writer did it.
+  const int64_t micros = (options_.clock->MonotonicNanos() - start) / 1000;
+  counters_.compaction_micros = before + micros;
   counters_.max_compaction_micros = std::max(counters_.max_compaction_micros, micros);
   return Status::Ok();
 }
@@ -1039,6 +1099,11 @@ Store::~Store() = default;
 
 Status Store::Commit(const CommitBatch& batch) { return impl_->Commit(batch); }
 Status Store::CompactHistory(int64_t max_log_rows) { return impl_->CompactHistory(max_log_rows); }
+Result<PreparedCompaction> Store::PrepareCompaction(int64_t max_log_rows) {
+  return impl_->PrepareCompaction(max_log_rows);
+}
+Status Store::ApplyCompaction(const PreparedCompaction& prepared) { return impl_->ApplyCompaction(prepared); }
+void Store::SetCompactInCommit(bool on) { impl_->compact_in_commit_ = on; }
 Status Store::ForEachSeries(const std::function<Status(const StoredSeries&)>& visit) {
   return impl_->ForEachSeries(visit);
 }

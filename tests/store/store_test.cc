@@ -521,6 +521,80 @@ TEST_CASE("a damaged history log row is reported as corruption naming the row", 
   CHECK(Count(dir.File("store.db"), "history_log") == 2);  // nothing moved, nothing lost
 }
 
+TEST_CASE("a compaction prepared on a read-only store and applied by the writer equals one done in place", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.history_chunk_points = 16;
+  auto writer = OpenOrDie(options);
+  StoreOptions twin_options = options;
+  twin_options.path = dir.File("twin.db");
+  auto twin = OpenOrDie(twin_options);  // gets the same commits and compacts in place
+  auto commit_both = [&](const CommitBatch& b) {
+    REQUIRE(writer->Commit(b).ok());
+    REQUIRE(twin->Commit(b).ok());
+  };
+  CommitBatch create;
+  create.series = {{"a", "p", 0}, {"b", "p", 0}};
+  commit_both(create);
+  for (int64_t first = 0; first < 60; first += 6) {
+    CommitBatch b;
+    for (int64_t step = first; step < first + 6; ++step) {
+      b.history.Add("a", step, 0.5 * static_cast<double>(step));
+      if (step % 2 == 0) b.history.Add("b", step, -static_cast<double>(step));
+    }
+    commit_both(b);
+  }
+  StoreOptions reader_options = options;
+  reader_options.read_only = true;
+  auto reader = OpenOrDie(reader_options);
+  Result<PreparedCompaction> prepared = reader->PrepareCompaction(7);
+  REQUIRE(prepared.ok());
+  CHECK(prepared->log_rows == 7);
+  CHECK(prepared->points == 7 * 9);  // 6 of a and 3 of b per commit (the create commit logged nothing)
+  // The writer commits on while the compaction is prepared; those rows stay in the log.
+  CommitBatch later;
+  later.history.Add("a", 60, 30.0);
+  commit_both(later);
+  REQUIRE(writer->ApplyCompaction(*prepared).ok());
+  REQUIRE(twin->CompactHistory(7).ok());
+  CHECK(writer->counters().compactions == 1);
+  CHECK(writer->counters().log_points == twin->counters().log_points);
+  for (const char* name : {"a", "b"}) {
+    Result<HistorySlice> got = writer->HistoryTail(name, 100);
+    Result<HistorySlice> want = twin->HistoryTail(name, 100);
+    REQUIRE(got.ok());
+    REQUIRE(want.ok());
+    CHECK(got->first_step == want->first_step);
+    CHECK(got->values.size() == want->values.size());
+    for (size_t i = 0; i < got->values.size(); ++i)
+      CHECK((got->values[i] == want->values[i] || (std::isnan(got->values[i]) && std::isnan(want->values[i]))));
+  }
+  CHECK(Count(dir.File("store.db"), "history") == Count(dir.File("twin.db"), "history"));
+  CHECK(Count(dir.File("store.db"), "history_log") == 4);  // 3 commits not prepared + the later one
+  // Applying the same preparation again would move rows that are gone: refused, nothing written.
+  Status again = writer->ApplyCompaction(*prepared);
+  CHECK(again.code() == StatusCode::kAborted);
+  CHECK(again.message().find("stale") != std::string::npos);
+  CHECK(Count(dir.File("store.db"), "history_generations") == 1);
+  CHECK(reader->ApplyCompaction(*prepared).code() == StatusCode::kUnavailable);
+}
+
+TEST_CASE("commit leaves the log alone when compaction in commit is off", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.history_compact_points = 1000;
+  auto store = OpenOrDie(options);
+  store->SetCompactInCommit(false);
+  CommitBatch b;
+  b.series = {{"a", "p", 0}};
+  for (int64_t i = 0; i < 1500; ++i) b.history.Add("a", i, 1.0);
+  REQUIRE(store->Commit(b).ok());
+  CHECK(store->counters().compactions == 0);
+  CHECK(store->counters().log_points == 1500);
+  REQUIRE(store->CompactHistory().ok());
+  CHECK(store->counters().log_points == 0);
+}
+
 TEST_CASE("commit compacts the history log once it passes the threshold", "[store]") {
   TempDir dir;
   StoreOptions options = TestOptions(dir);

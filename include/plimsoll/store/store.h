@@ -18,6 +18,7 @@
 #include <vector>
 
 #include "plimsoll/base/clock.h"
+#include "plimsoll/base/huge_pages.h"
 #include "plimsoll/base/status.h"
 #include "plimsoll/store/records.h"
 
@@ -104,9 +105,27 @@ struct StoreCounters {
   uint64_t compaction_failures = 0;  // failed compactions (the log is kept; retried later)
   int64_t last_commit_micros = 0;    // duration of the last successful Commit
   int64_t max_commit_micros = 0;
-  int64_t compaction_micros = 0;      // total time spent in successful compactions
-  int64_t max_compaction_micros = 0;  // the longest one (the writer commits nothing meanwhile)
+  // Time this Store spent in successful compactions (CompactHistory, or ApplyCompaction alone
+  // when another thread prepared them); the writer commits nothing meanwhile.
+  int64_t compaction_micros = 0;
+  int64_t max_compaction_micros = 0;  // the longest one
+  int64_t log_points = 0;             // history points in the log awaiting compaction
   StatusCode last_error = StatusCode::kOk;  // code of the most recent failure
+};
+
+// The oldest history-log rows regrouped into the rows of one new history generation
+// (Store::PrepareCompaction), ready to be appended by the writing Store (ApplyCompaction).
+struct PreparedCompaction {
+  struct Row {
+    int64_t series = 0, min_step = 0, max_step = 0, count = 0;
+    size_t offset = 0, bytes = 0;  // the row's blob in `bytes`
+  };
+  int64_t first_log_seq = 0, last_log_seq = -1;  // the log rows it replaces (the oldest ones)
+  int64_t log_rows = 0;
+  int64_t points = 0;
+  std::vector<Row> rows;                             // in key order (series, then log order)
+  std::vector<char, HugePageAllocator<char>> bytes;  // the rows' blobs back to back
+  bool empty() const { return log_rows == 0; }
 };
 
 // One series with its current model and state, as loaded at start-up or shown by `inspect`.
@@ -151,9 +170,23 @@ class Store {
 
   // Moves up to `max_log_rows` oldest history-log rows (one per commit) into per-series rows,
   // in one transaction; Corruption naming the row when a log row does not parse (nothing moved).
-  // Commit calls this itself past history_compact_points; exposed for tests and for an engine
-  // that prefers to compact when idle.
+  // Commit calls this itself past history_compact_points unless SetCompactInCommit(false).
+  // Equivalent to ApplyCompaction(PrepareCompaction(max_log_rows)).
   Status CompactHistory(int64_t max_log_rows = INT64_MAX);
+
+  // The expensive half of a compaction (reading and regrouping the log), for another thread
+  // with its own Store on the same file (read-only is enough): reads up to `max_log_rows`
+  // oldest log rows in one read transaction. Empty when the log is. Corruption naming the row
+  // when a log row does not parse.
+  Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows = INT64_MAX);
+  // Appends `prepared` as a new generation and deletes the log rows it replaces, in one
+  // transaction. Aborted, nothing written, when those are no longer the oldest log rows as
+  // prepared (another compaction moved them); Unavailable when read-only.
+  Status ApplyCompaction(const PreparedCompaction& prepared);
+  // Whether Commit compacts by itself once the log holds history_compact_points points (the
+  // default). A writer that prepares compactions on another thread turns this off and watches
+  // StoreCounters::log_points.
+  void SetCompactInCommit(bool on);
 
   // Calls `visit` for every series in id order with its model and state (start-up load).
   // Stops and returns the first non-OK status `visit` returns.
