@@ -9,8 +9,30 @@
 
 namespace plimsoll::stream {
 
+namespace {
+
+store::StoreOptions ReaderOptions(const store::StoreOptions& writer) {
+  store::StoreOptions out = writer;
+  out.read_only = true;
+  out.cache_kib = 8 * 1024;  // it reads the log once per compaction; the writer's cache matters more
+  return out;
+}
+
+}  // namespace
+
 CommitWriter::CommitWriter(std::unique_ptr<store::Store> store, Clock* clock)
-    : store_(std::move(store)), clock_(clock), thread_([this] { Loop(); }) {}
+    : store_(std::move(store)),
+      clock_(clock),
+      reader_options_(ReaderOptions(store_->options())),
+      compact_points_(store_->options().history_compact_points),
+      compactor_(),
+      thread_() {
+  if (!store_->options().read_only) {
+    store_->SetCompactInCommit(false);
+    compactor_ = std::thread([this] { CompactLoop(); });
+  }
+  thread_ = std::thread([this] { Loop(); });
+}
 
 CommitWriter::~CommitWriter() { Stop(); }
 
@@ -55,6 +77,7 @@ void CommitWriter::Stop() {
     cv_.notify_all();
   }
   if (thread_.joinable()) thread_.join();
+  if (compactor_.joinable()) compactor_.join();
 }
 
 store::StoreCounters CommitWriter::StoreCounters() const {
@@ -71,8 +94,26 @@ void CommitWriter::Loop() {
     {
       std::unique_lock lock(mu_);
       // A durable batch must be taken before the next one is written, so hand-back stays in order.
-      cv_.wait(lock, [&] { return stop_ || (pending_ && !durable_); });
+      cv_.wait(lock, [&] { return stop_ || (pending_ && !durable_) || prepared_; });
       if (stop_) return;
+      if (prepared_) {
+        // Between two commits: append what the compaction thread prepared (the next batch, if
+        // one came meanwhile, waits for it; it is much shorter than preparing).
+        store::PreparedCompaction prepared = std::move(*prepared_);
+        prepared_.reset();
+        lock.unlock();
+        Status applied = store_->ApplyCompaction(prepared);
+        lock.lock();
+        if (!applied.ok()) {
+          counters_.compaction_errors.fetch_add(1, std::memory_order_relaxed);
+          spdlog::warn("history compaction not applied (the log stays; retried after a later commit): {}",
+                       applied.ToString());
+        }
+        compaction_in_progress_ = false;
+        store_counters_ = store_->counters();
+        RequestCompactionIfDue();
+        continue;
+      }
       batch = &*pending_;  // stays valid: only this thread resets pending_
     }
     const int64_t start = clock_->MonotonicNanos();
@@ -86,6 +127,7 @@ void CommitWriter::Loop() {
       durable_ = std::move(pending_);
       pending_.reset();
       last_error_ = Status::Ok();
+      RequestCompactionIfDue();
       cv_.notify_all();
       continue;
     }
@@ -102,6 +144,53 @@ void CommitWriter::Loop() {
     const int backoff_ms = std::min(2000, 10 << std::min(failures_in_row, 8));
     cv_.wait_for(lock, std::chrono::milliseconds(backoff_ms), [&] { return stop_; });
     if (stop_) return;
+  }
+}
+
+void CommitWriter::RequestCompactionIfDue() {
+  if (!compactor_.joinable() || compaction_in_progress_ || store_counters_.log_points < compact_points_) return;
+  compaction_in_progress_ = true;
+  compaction_wanted_ = true;
+  cv_.notify_all();
+}
+
+void CommitWriter::CompactLoop() {
+  NameThisThread("plimsoll-compact");
+  std::unique_ptr<store::Store> reader;  // opened at the first compaction
+  for (;;) {
+    {
+      std::unique_lock lock(mu_);
+      cv_.wait(lock, [&] { return stop_ || compaction_wanted_; });
+      if (stop_) return;
+      compaction_wanted_ = false;
+    }
+    const auto failed = [&](const Status& status) {
+      std::lock_guard lock(mu_);
+      counters_.compaction_errors.fetch_add(1, std::memory_order_relaxed);
+      spdlog::warn("history compaction could not be prepared (retried after a later commit): {}", status.ToString());
+      compaction_in_progress_ = false;
+    };
+    if (!reader) {
+      Result<std::unique_ptr<store::Store>> opened = store::Store::Open(reader_options_);
+      if (!opened.ok()) {
+        failed(opened.status());
+        continue;
+      }
+      reader = std::move(opened).value();
+    }
+    Result<store::PreparedCompaction> prepared = reader->PrepareCompaction();
+    if (!prepared.ok()) {
+      failed(prepared.status());
+      continue;
+    }
+    std::lock_guard lock(mu_);
+    if (prepared->empty()) {
+      compaction_in_progress_ = false;
+    } else {
+      counters_.compactions_prepared.fetch_add(1, std::memory_order_relaxed);
+      prepared_ = std::move(prepared).value();
+    }
+    cv_.notify_all();
   }
 }
 

@@ -2,7 +2,9 @@
 
 #include <catch2/catch.hpp>
 #include <filesystem>
+#include <chrono>
 #include <string>
+#include <thread>
 
 namespace plimsoll::stream {
 namespace {
@@ -16,10 +18,11 @@ struct TempStore {
     fs::create_directories(dir);
   }
   ~TempStore() { fs::remove_all(dir); }
-  std::unique_ptr<store::Store> Open(bool read_only = false) const {
+  std::unique_ptr<store::Store> Open(bool read_only = false, int64_t compact_points = 3'000'000) const {
     store::StoreOptions options;
     options.path = (dir / "w.db").string();
     options.read_only = read_only;
+    options.history_compact_points = compact_points;
     auto opened = store::Store::Open(options);
     REQUIRE(opened.ok());
     return std::move(opened).value();
@@ -89,6 +92,43 @@ TEST_CASE("stopping with a batch unwritten leaves its positions unstored", "[str
   CHECK(waited.message().find("not durable") != std::string::npos);
   writer.Stop();
   CHECK_FALSE(temp.Open(true)->StoredPosition("file:/x", 0).has_value());
+}
+
+TEST_CASE("the writer compacts history on another thread while commits go on", "[stream]") {
+  TempStore temp;
+  CommitWriter writer(temp.Open(false, /*compact_points=*/1000), SystemClock());
+  constexpr int kRounds = 4, kCommits = 10, kPoints = 100;  // a compaction is due every round
+  const auto wait_until = [&](auto done) {  // bounded: the test asserts no time
+    for (int i = 0; i < 1000 && !done(); ++i) std::this_thread::sleep_for(std::chrono::milliseconds(10));
+  };
+  int64_t step = 0;
+  for (int round = 0; round < kRounds; ++round) {
+    for (int c = 0; c < kCommits; ++c) {
+      store::CommitBatch b;
+      if (step == 0) b.series.push_back({"s", "*", 0});
+      for (int k = 0; k < kPoints; ++k, ++step) b.history.Add("s", step, static_cast<double>(step));
+      b.positions.push_back({"file:/x", 0, step});
+      writer.Submit(std::move(b));
+      while (writer.TakeDurable()) {
+      }
+    }
+    REQUIRE(writer.WaitDurable(5'000).ok());
+    while (writer.TakeDurable()) {
+    }
+    wait_until([&] { return writer.StoreCounters().compactions == static_cast<uint64_t>(round + 1); });
+    INFO("round " << round);
+    CHECK(writer.StoreCounters().compactions == static_cast<uint64_t>(round + 1));
+    CHECK(writer.StoreCounters().log_points == 0);
+  }
+  CHECK(writer.counters().compactions_prepared.load() == kRounds);
+  CHECK(writer.counters().compaction_errors.load() == 0);
+  writer.Stop();
+  auto reader = temp.Open(/*read_only=*/true);
+  Result<store::HistorySlice> tail = reader->HistoryTail("s", kRounds * kCommits * kPoints);
+  REQUIRE(tail.ok());
+  CHECK(tail->first_step == 0);
+  REQUIRE(tail->values.size() == static_cast<size_t>(step));
+  for (size_t i = 0; i < tail->values.size(); ++i) REQUIRE(tail->values[i] == static_cast<double>(i));
 }
 
 }  // namespace plimsoll::stream
