@@ -401,8 +401,17 @@ __attribute__((target("avx2"))) bool TangentPassAvx2(std::span<const double> y, 
 // stay bit-identical to the 4- and 2-wide passes.
 typedef double Oct __attribute__((vector_size(64), may_alias));
 
+// GCC contracts a * b + c into a fused multiply-add wherever the target has one (its default
+// -ffp-contract=fast); functions marked with this keep the products and sums separate. Clang has
+// no such attribute (and contracts only within one expression).
+#if defined(__clang__)
+#define PLIMSOLL_NO_CONTRACT
+#else
+#define PLIMSOLL_NO_CONTRACT , optimize("fp-contract=off")
+#endif
+
 template <bool kTrend, model::SeasonType kSeason, bool kMultError, bool kMuRows>
-__attribute__((target("avx512f"), optimize("fp-contract=off"))) bool TangentPassAvx512(
+__attribute__((target("avx512f") PLIMSOLL_NO_CONTRACT)) bool TangentPassAvx512(
     std::span<const double> y, const model::Params& params, double phi, double level, double trend,
     std::vector<double>& season_work, size_t pp, double* tl, double* tb, double* t_season, double* jacobian,
     double* residuals, double* grad_log_mu, double* jr, bool needs_positive, double* log_mu_sum) {
@@ -736,7 +745,7 @@ __attribute__((always_inline)) inline void ShiftedSums(const double* d, size_t m
   }
 }
 
-__attribute__((target("avx512f"), optimize("fp-contract=off"))) void ShiftedSumsAvx512(const double* d, size_t m,
+__attribute__((target("avx512f") PLIMSOLL_NO_CONTRACT)) void ShiftedSumsAvx512(const double* d, size_t m,
                                                                                         const double* c, size_t n,
                                                                                         double* out) {
   ShiftedSums<Oct>(d, m, c, n, out);
