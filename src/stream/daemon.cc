@@ -219,6 +219,7 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_
     if (slot == kNoSlot) {
       slot = static_cast<uint32_t>(out.history.series.size());
       out.history.series.push_back(name(h.series));
+      out.history.hints.push_back(h.series);  // SeriesIds are dense: the store's name-lookup hint
     }
     out.history.points.push_back({slot, h.step, h.value});
   }
@@ -264,7 +265,7 @@ void CompleteBatch(const Engine& engine, store::CommitBatch& out, std::span<cons
   out.states.reserve(pending.dirty.size());
   for (SeriesId id : pending.dirty) {
     const Engine::Position pos = engine.SeriesPosition(id);
-    out.states.push_back({engine.SeriesName(id), pos.last_step, pos.last_time_ms, engine.EncodeCheckpoint(id)});
+    out.states.push_back({engine.SeriesName(id), pos.last_step, pos.last_time_ms, engine.EncodeCheckpoint(id), id});
     pending.is_dirty[id] = 0;
   }
   pending.dirty.clear();

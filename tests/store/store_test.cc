@@ -595,6 +595,40 @@ TEST_CASE("commit leaves the log alone when compaction in commit is off", "[stor
   CHECK(store->counters().log_points == 0);
 }
 
+TEST_CASE("name hints speed lookups up and never misplace a record, even when wrong", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch create;
+  create.series = {{"a", "p", 0}, {"b", "p", 0}};
+  create.states = {{"a", 1, 0, "a1", 0}, {"b", 1, 0, "b1", 1}};  // hints 0 and 1 learnt here
+  REQUIRE(store->Commit(create).ok());
+  CommitBatch swapped;  // the same hints now given to the other series
+  swapped.states = {{"a", 2, 0, "a2", 1}, {"b", 2, 0, "b2", 0}};
+  swapped.history.series = {"a", "b"};
+  swapped.history.hints = {1, 0};
+  swapped.history.points = {{0, 2, 20.0}, {1, 2, -20.0}};
+  REQUIRE(store->Commit(swapped).ok());
+  CommitBatch unknown;  // a hint never seen, and one beyond any dense index
+  unknown.states = {{"a", 3, 0, "a3", 7}, {"b", 3, 0, "b3", kNoHint - 1}};
+  REQUIRE(store->Commit(unknown).ok());
+  CHECK(store->GetSeries("a")->state->encoded == "a3");
+  CHECK(store->GetSeries("b")->state->encoded == "b3");
+  CHECK(store->HistoryTail("a", 1)->values == std::vector<double>{20.0});
+  CHECK(store->HistoryTail("b", 1)->values == std::vector<double>{-20.0});
+  // A rolled-back commit that added a series forgets every hint; the next commits still resolve.
+  CommitBatch failing;
+  failing.series = {{"c", "p", 0}};
+  failing.states = {{"c", 1, 0, "c1", 2}};
+  store->TEST_FailNextCommitAfterRows(2, Status::IoError("injected"));
+  CHECK_FALSE(store->Commit(failing).ok());
+  CommitBatch after;
+  after.states = {{"a", 4, 0, "a4", 0}, {"b", 4, 0, "b4", 1}};
+  REQUIRE(store->Commit(after).ok());
+  CHECK(store->GetSeries("a")->state->encoded == "a4");
+  CHECK(store->GetSeries("b")->state->encoded == "b4");
+  CHECK(store->GetSeries("c").status().code() == StatusCode::kNotFound);
+}
+
 TEST_CASE("commit compacts the history log once it passes the threshold", "[store]") {
   TempDir dir;
   StoreOptions options = TestOptions(dir);

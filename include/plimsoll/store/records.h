@@ -18,6 +18,12 @@ namespace plimsoll::store {
 
 inline constexpr double kNoValue = std::numeric_limits<double>::quiet_NaN();  // stored as NULL
 
+// A caller's dense number for a series name (the engine's series index), carried next to the
+// name in the hottest records so the store can skip the name lookup. Optional: a hint the store
+// has not seen, or one that now names another series, only costs the lookup (the store compares
+// the names). kNoHint: none.
+inline constexpr uint32_t kNoHint = UINT32_MAX;
+
 // One series' identity. Committed rows may only name series that exist in the store or appear
 // in the same batch's `series` list.
 struct SeriesRecord {
@@ -51,6 +57,7 @@ struct StateRecord {
   int64_t step = 0;
   int64_t time_ms = 0;
   std::string encoded;  // opaque bytes from the model module, returned bit-identical
+  uint32_t hint = kNoHint;  // see kNoHint
 };
 
 // The accepted observations of one commit, appended to the series' history (what refits read).
@@ -63,6 +70,7 @@ struct HistoryBatch {
     double value = 0;     // NaN: gap step
   };
   std::vector<std::string> series;
+  std::vector<uint32_t> hints;  // empty, or one per entry of `series` (see kNoHint)
   std::vector<Point> points;
 
   // Appends one point; a name equal to the previous point's is not stored again (other repeats
@@ -73,7 +81,7 @@ struct HistoryBatch {
   }
   size_t size() const { return points.size(); }
   bool empty() const { return points.empty(); }
-  void clear() { series.clear(), points.clear(); }
+  void clear() { series.clear(), hints.clear(), points.clear(); }
 };
 
 // An observation outside its one-step interval. Its id is (series, step): re-committing the
