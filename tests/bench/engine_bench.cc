@@ -18,18 +18,19 @@
 //   engine_records_per_cpu_s  the same per thread-CPU second (steadier on a shared machine)
 //   engine_ns_per_record      thread-CPU nanoseconds per record
 //   durable_records_per_s     records per wall second through Daemon::Run (poll, decode, engine,
-//                             ToStoreBatch, CommitWriter + Store::Commit), final commit included,
-//                             and until the history compaction the records made due is applied
-//                             (prepared and applied on other threads; one compaction cycle)
-//   durable_records_per_cpu_s records per process-CPU second (both threads) in that run
+//                             ToStoreBatch, CommitWriter + Store::Commit, history compaction on
+//                             other threads), final commit included, and until a compaction the
+//                             records made due is applied (one falls midway, see preroll_records)
+//   durable_records_per_cpu_s records per process-CPU second (all threads) in that run
 //   durable_ratio             durable_records_per_s / engine_records_per_s
 //   durable_ratio_cpu         durable_records_per_cpu_s / engine_records_per_cpu_s
 //   durable_commits           group commits in the durable run
 //   durable_owner_cpu_s       CPU seconds of the thread running Daemon::Run (the owner) in that run
 //   durable_other_cpu_s       CPU seconds of every other thread (commit writer, compaction) in that run
 //   durable_states_written    series states the store wrote at checkpoints (warm-up included)
-//   durable_compactions       history log compactions the store ran (warm-up included)
-//   durable_compaction_s      wall seconds the writer spent in them (it commits nothing meanwhile)
+//   durable_compactions       history log compactions applied in the timed window
+//   durable_compaction_s      wall seconds the writer spent applying them (it commits nothing meanwhile;
+//                             the reading and regrouping runs on the compaction thread)
 //   durable_commit_max_ms     the longest group commit (warm-up included)
 //   bytes_per_series          Engine::ResidentBytes() / series after warm-up (structures the
 //                             engine keeps per series; history lives in SQLite)
@@ -37,6 +38,9 @@
 //                             the series, divided by the series (allocator overhead included)
 //   flags_per_record          flags raised / records (a sanity figure: ~1% at a 99% band)
 //   series, records, record_bytes_mean, period
+//   preroll_records           untimed records after the warm-up that fill the history log to half
+//                             the compaction threshold (through both paths), so the timed window
+//                             holds one compaction cycle midway (0 with --quick: no compaction)
 
 #include <stdlib.h>
 #include <time.h>
@@ -274,7 +278,17 @@ BenchReport Run(const BenchArgs& args) {
   spdlog::set_level(spdlog::level::warn);
 
   const RecordBuffer warmup = MakeRecords(series, 0, 2, 7);
-  const RecordBuffer records = MakeRecords(series, 2, rounds, 11);
+  // A running daemon compacts its history log every history_compact_points points, on other
+  // threads, while it ingests. So that the timed window holds one whole compaction cycle at a
+  // representative phase (not all of it after the last record), untimed pre-roll rounds first
+  // fill the log to half the threshold: the window's records then make one compaction due midway.
+  const int64_t compact_points = store::StoreOptions().history_compact_points;
+  const auto series_count = static_cast<int64_t>(series);
+  const int64_t preroll_rounds = series_count * rounds >= compact_points
+                                     ? std::max<int64_t>(0, (compact_points / 2 - 2 * series_count) / series_count)
+                                     : 0;
+  const RecordBuffer preroll = MakeRecords(series, 2, preroll_rounds, 13);
+  const RecordBuffer records = MakeRecords(series, 2 + preroll_rounds, rounds, 11);
   const double record_bytes = static_cast<double>(records.text.size() - stream::kRecordPadding) /
                               static_cast<double>(records.lines.size()) - 1.0;
   const auto chooser = [](std::span<const double> h, const stream::SeriesRules&, bool) { return FixedChoice(h); };
@@ -288,6 +302,7 @@ BenchReport Run(const BenchArgs& args) {
   if (engine.counters().fits != series || engine.counters().fit_failures != 0)
     throw std::runtime_error("warm-up did not fit every series");
   const size_t resident = engine.ResidentBytes();
+  Feed(engine, decoder, preroll, daemon_options.commit_records);
   const uint64_t flags_before = engine.counters().flags;
 
   const auto wall0 = std::chrono::steady_clock::now();
@@ -296,7 +311,7 @@ BenchReport Run(const BenchArgs& args) {
   const double cpu = ThreadCpuSeconds() - cpu0;
   const double wall = std::chrono::duration<double>(std::chrono::steady_clock::now() - wall0).count();
   const double n = static_cast<double>(records.lines.size());
-  if (engine.counters().observations != series * static_cast<uint64_t>(rounds + 2))
+  if (engine.counters().observations != series * static_cast<uint64_t>(rounds + 2 + preroll_rounds))
     throw std::runtime_error("engine refused benchmark records");
   const double flags = static_cast<double>(engine.counters().flags - flags_before);
 
@@ -315,14 +330,17 @@ BenchReport Run(const BenchArgs& args) {
   MemorySource warm_source(warmup, "memory:warmup");
   Status warmed = (*daemon)->Run(warm_source, durable_decoder, stop);
   if (!warmed.ok()) throw std::runtime_error(warmed.ToString());
+  MemorySource preroll_source(preroll, "memory:preroll");
+  Status prerolled = (*daemon)->Run(preroll_source, durable_decoder, stop);
+  if (!prerolled.ok()) throw std::runtime_error(prerolled.ToString());
+  const uint64_t compactions_before = (*daemon)->StoreCounters().compactions;
+  const int64_t compaction_micros_before = (*daemon)->StoreCounters().compaction_micros;
   const uint64_t commits_before = (*daemon)->counters().commits.load();
   MemorySource source(records, "memory:records");
   const auto dwall0 = std::chrono::steady_clock::now();
   const double dcpu0 = ProcessCpuSeconds(), owner_cpu0 = ThreadCpuSeconds();
   Status ran = (*daemon)->Run(source, durable_decoder, stop);
-  // The records made a history compaction due (3.2M logged points against the 3M threshold: one
-  // compaction cycle); it runs on other threads, so wait until it is applied: its cost belongs to
-  // these records.
+  // A compaction the records made due and still under way belongs to them: wait until it is applied.
   const auto compaction_deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
   while ((*daemon)->StoreCounters().log_points >= store_options.history_compact_points &&
          std::chrono::steady_clock::now() < compaction_deadline)
@@ -330,7 +348,7 @@ BenchReport Run(const BenchArgs& args) {
   const double dcpu = ProcessCpuSeconds() - dcpu0, owner_cpu = ThreadCpuSeconds() - owner_cpu0;
   const double dwall = std::chrono::duration<double>(std::chrono::steady_clock::now() - dwall0).count();
   if (!ran.ok()) throw std::runtime_error(ran.ToString());
-  if ((*daemon)->engine().counters().observations != series * static_cast<uint64_t>(rounds + 2))
+  if ((*daemon)->engine().counters().observations != series * static_cast<uint64_t>(rounds + 2 + preroll_rounds))
     throw std::runtime_error("daemon refused benchmark records");
   const uint64_t commits = (*daemon)->counters().commits.load() - commits_before;
   const store::StoreCounters written = (*daemon)->StoreCounters();
@@ -348,14 +366,15 @@ BenchReport Run(const BenchArgs& args) {
   report.Add("durable_owner_cpu_s", owner_cpu);
   report.Add("durable_other_cpu_s", dcpu - owner_cpu);
   report.Add("durable_states_written", static_cast<int64_t>(written.states_written));
-  report.Add("durable_compactions", static_cast<int64_t>(written.compactions));
-  report.Add("durable_compaction_s", 1e-6 * static_cast<double>(written.compaction_micros));
+  report.Add("durable_compactions", static_cast<int64_t>(written.compactions - compactions_before));
+  report.Add("durable_compaction_s", 1e-6 * static_cast<double>(written.compaction_micros - compaction_micros_before));
   report.Add("durable_commit_max_ms", 1e-3 * static_cast<double>(written.max_commit_micros));
   report.Add("bytes_per_series", static_cast<double>(resident) / static_cast<double>(series));
   report.Add("rss_bytes_per_series", static_cast<double>(rss_after - rss_before) / static_cast<double>(series));
   report.Add("flags_per_record", flags / n);
   report.Add("series", static_cast<int64_t>(series));
   report.Add("records", static_cast<int64_t>(records.lines.size()));
+  report.Add("preroll_records", static_cast<int64_t>(preroll.lines.size()));
   report.Add("record_bytes_mean", record_bytes);
   report.Add("period", static_cast<int64_t>(kPeriod));
   report.notes.push_back(
