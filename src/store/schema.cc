@@ -149,15 +149,11 @@ CREATE TABLE history_generations (
 );
 INSERT INTO history_generations(gen, points, compacted_ms)
   SELECT 0, total, 0 FROM (SELECT sum(count) AS total FROM history) WHERE total IS NOT NULL;
+-- The columns of version 5's history, led by the generation.
 CREATE TABLE history_by_generation (
-  gen      INTEGER NOT NULL,
-  series   INTEGER NOT NULL REFERENCES series(id),
-  seq      INTEGER NOT NULL,
-  min_step INTEGER NOT NULL,
-  max_step INTEGER NOT NULL,
-  count    INTEGER NOT NULL,
-  format   INTEGER NOT NULL,
-  points   BLOB NOT NULL,
+  gen INTEGER NOT NULL, series INTEGER NOT NULL REFERENCES series(id), seq INTEGER NOT NULL,
+  min_step INTEGER NOT NULL, max_step INTEGER NOT NULL, count INTEGER NOT NULL,
+  format INTEGER NOT NULL, points BLOB NOT NULL,
   PRIMARY KEY (gen, series, seq)
 ) WITHOUT ROWID;
 INSERT INTO history_by_generation(gen, series, seq, min_step, max_step, count, format, points)
