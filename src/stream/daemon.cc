@@ -535,7 +535,9 @@ DaemonOptions DaemonOptionsFromConfig(const Config& config) {
   DaemonOptions out;
   out.commit_ms = config.store.commit_ms;
   out.commit_records = static_cast<size_t>(config.store.commit_records);
-  out.checkpoint_ms = config.store.checkpoint_ms;
+  // Input read since a checkpoint is read again after a crash; stdin cannot be, so there every
+  // commit is a checkpoint (states never fall behind the history and flags already stored).
+  out.checkpoint_ms = config.source.kind == SourceKind::kStdin ? 0 : config.store.checkpoint_ms;
   out.max_uncommitted_records = std::max<size_t>(out.commit_records * 20, 100'000);
   // A file is a replay: its own times drive bucket closing, so reruns give identical results.
   out.event_time = config.source.kind == SourceKind::kFile;

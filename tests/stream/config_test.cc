@@ -416,15 +416,21 @@ namespace plimsoll::stream {
 namespace {
 
 TEST_CASE("the store's commit and checkpoint keys reach the daemon options", "[stream]") {
-  const DaemonOptions defaults = DaemonOptionsFromConfig(Parse(""));
+  const DaemonOptions defaults = DaemonOptionsFromConfig(Parse("[source]\nkind = \"file\"\npath = \"x.csv\"\n"));
   CHECK(defaults.commit_ms == 100);
   CHECK(defaults.commit_records == 50'000);
   CHECK(defaults.checkpoint_ms == 5'000);
-  const DaemonOptions set =
-      DaemonOptionsFromConfig(Parse("[store]\ncommit_ms = 250\ncommit_records = 9000\ncheckpoint_ms = 0\n"));
+  const DaemonOptions set = DaemonOptionsFromConfig(Parse(
+      "[source]\nkind = \"file\"\npath = \"x.csv\"\n[store]\ncommit_ms = 250\ncommit_records = 9000\ncheckpoint_ms = 0\n"));
   CHECK(set.commit_ms == 250);
   CHECK(set.commit_records == 9'000);
   CHECK(set.checkpoint_ms == 0);  // every commit a checkpoint
+}
+
+TEST_CASE("on stdin every commit is a checkpoint, whatever checkpoint_ms says", "[stream]") {
+  // Records read since a checkpoint are read again after a crash; stdin's cannot be.
+  CHECK(DaemonOptionsFromConfig(Parse("")).checkpoint_ms == 0);
+  CHECK(DaemonOptionsFromConfig(Parse("[store]\ncheckpoint_ms = 5000\n")).checkpoint_ms == 0);
 }
 
 }  // namespace
