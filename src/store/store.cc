@@ -221,7 +221,8 @@ class Store::Impl {
   Status Commit(const CommitBatch& batch);
   Status CompactHistory(int64_t max_log_rows);
   Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows);
-  Status ApplyCompaction(const PreparedCompaction& prepared);
+  // `started_ns`: when the compaction's work on this Store began (its time goes to the counters).
+  Status ApplyCompaction(const PreparedCompaction& prepared, int64_t started_ns);
   bool compact_in_commit_ = true;
   Status ForEachSeries(const std::function<Status(const StoredSeries&)>& visit);
   Result<StoredSeries> GetSeries(std::string_view name);
@@ -705,11 +706,10 @@ Result<PreparedCompaction> Store::Impl::ReadAndRegroupLog(int64_t max_log_rows) 
   return out;
 }
 
-Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared) {
+Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared, int64_t started_ns) {
   if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
   if (prepared.empty()) return Status::Ok();
   const int64_t seq_before = next_history_seq_;
-  const int64_t start = options_.clock->MonotonicNanos();
   Status status = RunTransaction(
       "history compaction",
       [&]() -> Status {
@@ -766,7 +766,7 @@ Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared) {
   log_points_ = std::max<int64_t>(0, log_points_ - prepared.points);
   counters_.log_points = log_points_;
   ++counters_.compactions;
-  const int64_t micros = (options_.clock->MonotonicNanos() - start) / 1000;
+  const int64_t micros = (options_.clock->MonotonicNanos() - started_ns) / 1000;
   counters_.compaction_micros += micros;
   counters_.max_compaction_micros = std::max(counters_.max_compaction_micros, micros);
   return Status::Ok();
@@ -781,13 +781,7 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
     counters_.last_error = prepared.status().code();
     return prepared.status().WithContext("history compaction in '" + db_->path() + "'");
   }
-  const int64_t before = counters_.compaction_micros;
-  PLIMSOLL_RETURN_IF_ERROR(ApplyCompaction(*prepared));
-  // Count the preparation too: here the writer did it.
-  const int64_t micros = (options_.clock->MonotonicNanos() - start) / 1000;
-  counters_.compaction_micros = before + micros;
-  counters_.max_compaction_micros = std::max(counters_.max_compaction_micros, micros);
-  return Status::Ok();
+  return ApplyCompaction(*prepared, start);  // timed from the start: here the writer prepared it too
 }
 
 Result<int64_t> Store::Impl::LookupSeries(std::string_view name) {
@@ -1133,7 +1127,9 @@ Status Store::CompactHistory(int64_t max_log_rows) { return impl_->CompactHistor
 Result<PreparedCompaction> Store::PrepareCompaction(int64_t max_log_rows) {
   return impl_->PrepareCompaction(max_log_rows);
 }
-Status Store::ApplyCompaction(const PreparedCompaction& prepared) { return impl_->ApplyCompaction(prepared); }
+Status Store::ApplyCompaction(const PreparedCompaction& prepared) {
+  return impl_->ApplyCompaction(prepared, impl_->options_.clock->MonotonicNanos());
+}
 void Store::SetCompactInCommit(bool on) { impl_->compact_in_commit_ = on; }
 Status Store::ForEachSeries(const std::function<Status(const StoredSeries&)>& visit) {
   return impl_->ForEachSeries(visit);
