@@ -24,9 +24,7 @@ CommitWriter::CommitWriter(std::unique_ptr<store::Store> store, Clock* clock)
     : store_(std::move(store)),
       clock_(clock),
       reader_options_(ReaderOptions(store_->options())),
-      compact_points_(store_->options().history_compact_points),
-      compactor_(),
-      thread_() {
+      compact_points_(store_->options().history_compact_points) {
   if (!store_->options().read_only) {
     store_->SetCompactInCommit(false);
     compactor_ = std::thread([this] { CompactLoop(); });
