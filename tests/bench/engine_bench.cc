@@ -333,8 +333,7 @@ BenchReport Run(const BenchArgs& args) {
   MemorySource preroll_source(preroll, "memory:preroll");
   Status prerolled = (*daemon)->Run(preroll_source, durable_decoder, stop);
   if (!prerolled.ok()) throw std::runtime_error(prerolled.ToString());
-  const uint64_t compactions_before = (*daemon)->StoreCounters().compactions;
-  const int64_t compaction_micros_before = (*daemon)->StoreCounters().compaction_micros;
+  const store::StoreCounters written_before = (*daemon)->StoreCounters();
   const uint64_t commits_before = (*daemon)->counters().commits.load();
   MemorySource source(records, "memory:records");
   const auto dwall0 = std::chrono::steady_clock::now();
@@ -342,7 +341,7 @@ BenchReport Run(const BenchArgs& args) {
   Status ran = (*daemon)->Run(source, durable_decoder, stop);
   // A compaction the records made due and still under way belongs to them: wait until it is applied.
   const auto compaction_deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
-  while ((*daemon)->StoreCounters().log_points >= store_options.history_compact_points &&
+  while ((*daemon)->StoreCounters().log_points >= compact_points &&
          std::chrono::steady_clock::now() < compaction_deadline)
     std::this_thread::sleep_for(std::chrono::milliseconds(1));
   const double dcpu = ProcessCpuSeconds() - dcpu0, owner_cpu = ThreadCpuSeconds() - owner_cpu0;
@@ -366,8 +365,8 @@ BenchReport Run(const BenchArgs& args) {
   report.Add("durable_owner_cpu_s", owner_cpu);
   report.Add("durable_other_cpu_s", dcpu - owner_cpu);
   report.Add("durable_states_written", static_cast<int64_t>(written.states_written));
-  report.Add("durable_compactions", static_cast<int64_t>(written.compactions - compactions_before));
-  report.Add("durable_compaction_s", 1e-6 * static_cast<double>(written.compaction_micros - compaction_micros_before));
+  report.Add("durable_compactions", static_cast<int64_t>(written.compactions - written_before.compactions));
+  report.Add("durable_compaction_s", 1e-6 * static_cast<double>(written.compaction_micros - written_before.compaction_micros));
   report.Add("durable_commit_max_ms", 1e-3 * static_cast<double>(written.max_commit_micros));
   report.Add("bytes_per_series", static_cast<double>(resident) / static_cast<double>(series));
   report.Add("rss_bytes_per_series", static_cast<double>(rss_after - rss_before) / static_cast<double>(series));

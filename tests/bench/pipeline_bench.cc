@@ -61,13 +61,12 @@ class TimingSink final : public stream::OutputSink {
     const auto now = std::chrono::steady_clock::now();
     std::lock_guard<std::mutex> lock(mu_);
     durable_records_ += static_cast<int64_t>(durable.history.size());
-    const int64_t sum = durable_records_;
-    if (start_records_ < 0 && sum >= warm_) {
-      start_records_ = sum;
+    if (start_records_ < 0 && durable_records_ >= warm_) {
+      start_records_ = durable_records_;
       start_ = now;
     }
-    if (sum >= total_ && end_records_ < 0) {
-      end_records_ = sum;
+    if (durable_records_ >= total_ && end_records_ < 0) {
+      end_records_ = durable_records_;
       end_ = now;
     }
     const int64_t since = latency_since_ms_.load();
