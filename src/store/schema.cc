@@ -161,6 +161,29 @@ INSERT INTO history_by_generation(gen, series, seq, min_step, max_step, count, f
 DROP TABLE history;
 ALTER TABLE history_by_generation RENAME TO history;
 )sql"},
+    {7, "history rows packed: one row holds many series' points of a generation, found through its directory",
+     R"sql(
+-- Rows of versions 2-6 hold one series each (first_series = last_series, no directory); a
+-- compaction now writes format-3 rows holding many series. The key is a rowid (= seq) so one
+-- series' part of a row is read with incremental blob I/O.
+CREATE TABLE history_packed (
+  seq          INTEGER PRIMARY KEY,
+  gen          INTEGER NOT NULL,
+  first_series INTEGER NOT NULL,
+  last_series  INTEGER NOT NULL,
+  min_step     INTEGER NOT NULL,
+  max_step     INTEGER NOT NULL,
+  count        INTEGER NOT NULL,
+  format       INTEGER NOT NULL,
+  directory    BLOB,
+  points       BLOB NOT NULL
+);
+INSERT INTO history_packed(seq, gen, first_series, last_series, min_step, max_step, count, format, directory, points)
+  SELECT seq, gen, series, series, min_step, max_step, count, format, NULL, points FROM history ORDER BY seq;
+DROP TABLE history;
+ALTER TABLE history_packed RENAME TO history;
+CREATE INDEX history_by_series ON history(gen, last_series);
+)sql"},
 };
 
 Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }

@@ -131,17 +131,42 @@ std::string_view Statement::BlobView(int col) const {
   return std::string_view(static_cast<const char*>(data), static_cast<size_t>(sqlite3_column_bytes(stmt_, col)));
 }
 
-Status SqliteDb::ReadBlob(const char* table, const char* column, int64_t rowid, std::span<char> out) {
+namespace {
+
+// Opens the blob, then calls read(blob, bytes, context) with its size and an error context.
+template <typename Fn>
+Status WithBlob(sqlite3* db, const char* table, const char* column, int64_t rowid, Fn read) {
   sqlite3_blob* raw = nullptr;
-  const int rc = sqlite3_blob_open(db_, "main", table, column, rowid, /*flags=read-only*/ 0, &raw);
+  const int rc = sqlite3_blob_open(db, "main", table, column, rowid, /*flags=read-only*/ 0, &raw);
   const std::unique_ptr<sqlite3_blob, int (*)(sqlite3_blob*)> blob(raw, sqlite3_blob_close);
   const std::string context = std::string("reading ") + table + "." + column + " of row " + std::to_string(rowid);
-  if (rc != SQLITE_OK) return SqliteStatus(rc, context, db_);
-  if (static_cast<size_t>(sqlite3_blob_bytes(blob.get())) != out.size())
-    return Status::InvalidArgument(context + ": the blob has " + std::to_string(sqlite3_blob_bytes(blob.get())) +
-                                   " bytes, not " + std::to_string(out.size()));
-  if (out.empty()) return Status::Ok();
-  return SqliteStatus(sqlite3_blob_read(blob.get(), out.data(), static_cast<int>(out.size()), 0), context, db_);
+  if (rc != SQLITE_OK) return SqliteStatus(rc, context, db);
+  return read(blob.get(), static_cast<int64_t>(sqlite3_blob_bytes(blob.get())), context);
+}
+
+}  // namespace
+
+Status SqliteDb::ReadBlob(const char* table, const char* column, int64_t rowid, std::span<char> out) {
+  return WithBlob(db_, table, column, rowid, [&](sqlite3_blob* blob, int64_t bytes, const std::string& context) {
+    if (static_cast<size_t>(bytes) != out.size())
+      return Status::InvalidArgument(context + ": the blob has " + std::to_string(bytes) + " bytes, not " +
+                                     std::to_string(out.size()));
+    if (out.empty()) return Status::Ok();
+    return SqliteStatus(sqlite3_blob_read(blob, out.data(), static_cast<int>(out.size()), 0), context, db_);
+  });
+}
+
+Status SqliteDb::ReadBlobPart(const char* table, const char* column, int64_t rowid, int64_t offset,
+                              std::span<char> out) {
+  return WithBlob(db_, table, column, rowid, [&](sqlite3_blob* blob, int64_t bytes, const std::string& context) {
+    if (offset < 0 || offset > bytes || out.size() > static_cast<size_t>(bytes - offset))
+      return Status::InvalidArgument(context + ": bytes " + std::to_string(offset) + ".." +
+                                     std::to_string(offset + static_cast<int64_t>(out.size())) +
+                                     " are not inside its " + std::to_string(bytes));
+    if (out.empty()) return Status::Ok();
+    return SqliteStatus(sqlite3_blob_read(blob, out.data(), static_cast<int>(out.size()), static_cast<int>(offset)),
+                        context, db_);
+  });
 }
 
 Result<std::unique_ptr<SqliteDb>> SqliteDb::Open(const std::string& path, int flags) {

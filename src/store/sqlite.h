@@ -93,6 +93,9 @@ class SqliteDb {
   // the blob's size (InvalidArgument otherwise), without SQLite assembling the value in memory
   // of its own first (incremental blob I/O): for multi-megabyte history log rows.
   Status ReadBlob(const char* table, const char* column, int64_t rowid, std::span<char> out);
+  // Copies out.size() bytes of that blob from byte `offset` (InvalidArgument when they are not all
+  // inside it): one series' segment of a packed history row without reading the rest.
+  Status ReadBlobPart(const char* table, const char* column, int64_t rowid, int64_t offset, std::span<char> out);
 
   // True while no explicit transaction is open.
   bool autocommit() const { return sqlite3_get_autocommit(db_) != 0; }

@@ -143,12 +143,162 @@ struct KeyedRow {
   static bool ByKey(const KeyedRow& a, const KeyedRow& b) { return a.key != b.key ? a.key < b.key : a.step < b.step; }
 };
 
-// One run of a history log row during compaction: `count` values for consecutive steps from
-// `first_step`, stored at byte `offset` of the compaction's copy of the log blobs.
-struct LogRun {
-  int64_t series, first_step;
-  size_t count, offset;
+// One run of a history log row during compaction, grouped by series (its place in the grouped
+// array says which): `count` values for consecutive steps from `first_step`, at byte `offset` of
+// the compaction's copy of the log blobs.
+struct SortedRun {
+  int64_t first_step;
+  uint64_t offset, count;
 };
+
+// history.format 3 (schema 7): one row of a compaction generation packing many series. Its
+// `directory` blob lists the series in key order, each with its step range, value count and the
+// byte length of its segment; the `points` blob holds the segments in that order, each a sequence
+// of format-2 runs without the series key (a later run's value for a step wins).
+constexpr int64_t kHistoryFormatPack = 3;
+
+// One directory entry of a packed row: the series' segment is `bytes` bytes of the row's points
+// from `offset`.
+struct PackEntry {
+  int64_t series = 0, min_step = 0, max_step = 0, count = 0;
+  size_t offset = 0, bytes = 0;
+};
+
+// Appends a directory: varint entry count, then per entry zigzag varints of the series key's
+// delta from the previous entry's (the first from 0) and of the min step, then varints of
+// max step - min step, the count and the segment's bytes.
+void PutDirectory(std::vector<char>& out, std::span<const PackEntry> entries) {
+  std::string encoded;
+  PutVarint(encoded, entries.size());
+  int64_t previous = 0;
+  for (const PackEntry& e : entries) {
+    PutVarint(encoded, ZigZag(e.series - previous));
+    PutVarint(encoded, ZigZag(e.min_step));
+    PutVarint(encoded, static_cast<uint64_t>(e.max_step - e.min_step));
+    PutVarint(encoded, static_cast<uint64_t>(e.count));
+    PutVarint(encoded, e.bytes);
+    previous = e.series;
+  }
+  out.insert(out.end(), encoded.begin(), encoded.end());
+}
+
+// The entry of `series` in the directory of the packed row `seq` whose points blob has
+// `points_bytes` bytes; nullopt when the row holds no points of it. Corruption naming the row when
+// the directory does not parse or points outside the blob.
+Result<std::optional<PackEntry>> FindPackEntry(int64_t seq, std::string_view directory, size_t points_bytes,
+                                               int64_t series) {
+  auto damaged = [&](size_t at) {
+    return Status::Corruption("history row " + std::to_string(seq) + " has a damaged directory at byte " +
+                              std::to_string(at));
+  };
+  size_t at = 0;
+  uint64_t entries = 0;
+  if (!GetVarint(directory, at, entries)) return damaged(at);
+  PackEntry e;
+  for (uint64_t i = 0; i < entries; ++i) {
+    uint64_t delta = 0, min_step = 0, span = 0, count = 0, bytes = 0;
+    if (!GetVarint(directory, at, delta) || !GetVarint(directory, at, min_step) || !GetVarint(directory, at, span) ||
+        !GetVarint(directory, at, count) || !GetVarint(directory, at, bytes))
+      return damaged(at);
+    e.offset += e.bytes;
+    e.series += UnZigZag(delta);
+    e.min_step = UnZigZag(min_step);
+    e.max_step = e.min_step + static_cast<int64_t>(span);
+    e.count = static_cast<int64_t>(count);
+    e.bytes = static_cast<size_t>(bytes);
+    if (e.bytes > points_bytes - std::min(points_bytes, e.offset)) return damaged(at);
+    if (e.series == series) return std::optional<PackEntry>(e);
+    if (e.series > series) break;  // key order
+  }
+  return std::optional<PackEntry>();
+}
+
+// Builds the packed rows of one compaction generation from the log's runs, series by series in
+// key order: a row takes series until it holds `row_points` values (a series with more continues
+// in the next row), and a log run that continues the previous one (the next step) extends it, so a
+// series' steps from many commits become one run.
+class PackWriter {
+ public:
+  PackWriter(PreparedCompaction& out, size_t row_points) : out_(out), cap_(static_cast<int64_t>(row_points)) {
+    StartRow();
+  }
+  // `runs` in log order; their values are at log + run.offset.
+  void AddSeries(int64_t series, std::span<const SortedRun> runs, const char* log);
+  void Finish() { CloseRow(); }
+
+ private:
+  void StartRow() {
+    row_ = PreparedCompaction::Row{};
+    row_.min_step = INT64_MAX, row_.max_step = INT64_MIN;
+    row_.offset = out_.bytes.size();
+  }
+  void CloseRow();
+
+  PreparedCompaction& out_;
+  const int64_t cap_;
+  PreparedCompaction::Row row_;     // the row being built: its points so far end out_.bytes
+  std::vector<PackEntry> entries_;  // its directory so far
+  std::string header_;
+};
+
+void PackWriter::AddSeries(int64_t series, std::span<const SortedRun> runs, const char* log) {
+  size_t piece = 0;
+  uint64_t done = 0;  // the cursor: values of runs[piece] already written
+  bool in_row = false;  // whether entries_.back() is this series' segment of the current row
+  while (piece < runs.size()) {
+    if (row_.count == cap_) CloseRow(), in_row = false;
+    if (!in_row) {
+      entries_.push_back({series, INT64_MAX, INT64_MIN, 0, out_.bytes.size() - row_.offset, 0});
+      in_row = true;
+    }
+    // The longest stretch of consecutive steps from the cursor that fits the row.
+    const auto room = static_cast<uint64_t>(cap_ - row_.count);
+    const int64_t first = runs[piece].first_step + static_cast<int64_t>(done);
+    uint64_t take = 0, end_done = done;
+    size_t end_piece = piece;
+    while (end_piece < runs.size() && take < room) {
+      const SortedRun& r = runs[end_piece];
+      if (end_done == 0 && take > 0 && r.first_step != first + static_cast<int64_t>(take)) break;
+      const uint64_t n = std::min(r.count - end_done, room - take);
+      take += n, end_done += n;
+      if (end_done == r.count) ++end_piece, end_done = 0;
+    }
+    header_.clear();
+    PutRunHeader(header_, std::nullopt, first, take);
+    out_.bytes.insert(out_.bytes.end(), header_.begin(), header_.end());
+    while (piece != end_piece || done != end_done) {
+      const SortedRun& r = runs[piece];
+      const uint64_t stop = piece == end_piece ? end_done : r.count;
+      const char* values = log + r.offset;
+      out_.bytes.insert(out_.bytes.end(), values + done * sizeof(double), values + stop * sizeof(double));
+      if (stop == r.count) {
+        ++piece, done = 0;
+      } else {
+        done = stop;
+      }
+    }
+    const int64_t last = first + static_cast<int64_t>(take) - 1;
+    PackEntry& entry = entries_.back();
+    entry.min_step = std::min(entry.min_step, first), entry.max_step = std::max(entry.max_step, last);
+    entry.count += static_cast<int64_t>(take);
+    entry.bytes = out_.bytes.size() - row_.offset - entry.offset;
+    row_.min_step = std::min(row_.min_step, first), row_.max_step = std::max(row_.max_step, last);
+    row_.count += static_cast<int64_t>(take);
+  }
+}
+
+void PackWriter::CloseRow() {
+  if (row_.count == 0) return;
+  row_.first_series = entries_.front().series;
+  row_.last_series = entries_.back().series;
+  row_.bytes = out_.bytes.size() - row_.offset;
+  row_.directory_offset = out_.directories.size();
+  PutDirectory(out_.directories, entries_);
+  row_.directory_bytes = out_.directories.size() - row_.directory_offset;
+  out_.rows.push_back(row_);
+  entries_.clear();
+  StartRow();
+}
 
 constexpr const char* kSeriesSelect =
     "SELECT s.id, s.name, s.profile, s.created_ms, "
@@ -195,6 +345,13 @@ T Clamp(T value, T lo, T hi) {
 
 }  // namespace
 
+void PreparedCompaction::Clear() {
+  first_log_seq = 0, last_log_seq = -1, log_rows = 0, points = 0;
+  rows.clear();
+  bytes.clear();
+  directories.clear();
+}
+
 std::string_view SynchronousName(Synchronous level) {
   switch (level) {
     case Synchronous::kOff: return "off";
@@ -220,7 +377,7 @@ class Store::Impl {
   Status Load();
   Status Commit(const CommitBatch& batch);
   Status CompactHistory(int64_t max_log_rows);
-  Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows);
+  Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows, PreparedCompaction recycled);
   // `started_ns`: when the compaction's work on this Store began (its time goes to the counters).
   Status ApplyCompaction(const PreparedCompaction& prepared, int64_t started_ns);
   bool compact_in_commit_ = true;
@@ -253,9 +410,7 @@ class Store::Impl {
   Status CountRow(Tally& tally);
   Result<int64_t> Resolve(std::string_view name, std::string_view what, uint32_t hint = kNoHint);
   Result<int64_t> LookupSeries(std::string_view name);
-  void AppendHistoryRows(PreparedCompaction& out, int64_t series, std::span<const LogRun> runs,
-                         std::string_view log_bytes) const;
-  Result<PreparedCompaction> ReadAndRegroupLog(int64_t max_log_rows);
+  Result<PreparedCompaction> ReadAndRegroupLog(int64_t max_log_rows, PreparedCompaction out);
 
   // Series name -> integer key for the writer; rolled back with the transaction that added names.
   std::unordered_map<std::string, int64_t, StringHash, std::equal_to<>> series_ids_;
@@ -289,6 +444,11 @@ class Store::Impl {
   std::vector<uint32_t> run_starts_;   // WriteBatch: counting sort of history points by series
   std::vector<uint32_t> run_order_;
   std::vector<KeyedRow> keyed_;        // WriteBatch: states / flags in key order
+  // ReadAndRegroupLog's scratch, kept between compactions: its buffers are tens of megabytes.
+  std::vector<char, HugePageAllocator<char>> log_copy_;                // the log rows' blobs back to back
+  std::vector<SortedRun, HugePageAllocator<SortedRun>> sorted_runs_;  // their runs grouped by series
+  std::vector<size_t> series_run_starts_;  // by series key: its first run in sorted_runs_ (counting sort)
+  std::vector<size_t> series_run_cursor_;
 };
 
 Status Store::Impl::Load() {
@@ -600,64 +760,19 @@ Status Store::Impl::Commit(const CommitBatch& batch) {
   return Status::Ok();
 }
 
-void Store::Impl::AppendHistoryRows(PreparedCompaction& out, int64_t series, std::span<const LogRun> runs,
-                                    std::string_view log_bytes) const {
-  // Rows of at most history_chunk_points values, each a sequence of runs; a log run that
-  // continues the previous one (the next step) extends it, so a series' steps from many commits
-  // become one run. Rows are never rewritten: later compactions add rows of a later generation.
-  const auto cap = static_cast<size_t>(options_.history_chunk_points);
-  std::string run_values;  // values of the run being built
-  PreparedCompaction::Row row{series, INT64_MAX, INT64_MIN, 0, out.bytes.size(), 0};
-  int64_t run_first = 0;
-  size_t run_count = 0;
-  auto close_run = [&] {
-    if (run_count == 0) return;
-    std::string header;
-    PutRunHeader(header, std::nullopt, run_first, run_count);
-    out.bytes.insert(out.bytes.end(), header.begin(), header.end());
-    out.bytes.insert(out.bytes.end(), run_values.begin(), run_values.end());
-    run_values.clear();
-    run_count = 0;
-  };
-  auto close_row = [&] {
-    close_run();
-    if (row.count == 0) return;
-    row.bytes = out.bytes.size() - row.offset;
-    out.rows.push_back(row);
-    row = {series, INT64_MAX, INT64_MIN, 0, out.bytes.size(), 0};
-  };
-  for (const LogRun& r : runs) {
-    for (size_t done = 0; done < r.count;) {
-      if (static_cast<size_t>(row.count) == cap) close_row();
-      const size_t take = std::min(r.count - done, cap - static_cast<size_t>(row.count));
-      const int64_t first = r.first_step + static_cast<int64_t>(done);
-      if (run_count == 0 || first != run_first + static_cast<int64_t>(run_count)) {
-        close_run();
-        run_first = first;
-      }
-      run_values.append(log_bytes.substr(r.offset + done * sizeof(double), take * sizeof(double)));
-      run_count += take, done += take;
-      row.count += static_cast<int64_t>(take);
-      row.min_step = std::min(row.min_step, first);
-      row.max_step = std::max(row.max_step, first + static_cast<int64_t>(take) - 1);
-    }
-  }
-  close_row();
-}
-
-Result<PreparedCompaction> Store::Impl::PrepareCompaction(int64_t max_log_rows) {
+Result<PreparedCompaction> Store::Impl::PrepareCompaction(int64_t max_log_rows, PreparedCompaction recycled) {
   // One read transaction: the listed log rows and their blobs come from the same snapshot.
   PLIMSOLL_RETURN_IF_ERROR(db_->Exec("BEGIN"));
-  Result<PreparedCompaction> prepared = ReadAndRegroupLog(max_log_rows);
+  Result<PreparedCompaction> prepared = ReadAndRegroupLog(max_log_rows, std::move(recycled));
   IgnoreError(db_->Exec("COMMIT"));  // a read transaction has nothing to lose; the result is already whole
   return prepared;
 }
 
-Result<PreparedCompaction> Store::Impl::ReadAndRegroupLog(int64_t max_log_rows) {
-  PreparedCompaction out;
-  // The log rows' blobs back to back, read straight into one buffer, and their runs in log
-  // order (grouped by series below). Runs, not points: a run spans a series' steps in one
-  // commit. Both buffers are megabytes, mapped with huge pages (base/huge_pages.h).
+Result<PreparedCompaction> Store::Impl::ReadAndRegroupLog(int64_t max_log_rows, PreparedCompaction out) {
+  out.Clear();
+  // The log rows' blobs are read straight into one buffer; their runs (not points: a run spans a
+  // series' steps in one commit) are grouped by series with a counting sort over the series keys,
+  // which keeps each series' runs in log order, so a later value for a step still wins on read.
   struct LogRow {
     int64_t seq, format;
     size_t bytes;
@@ -677,32 +792,58 @@ Result<PreparedCompaction> Store::Impl::ReadAndRegroupLog(int64_t max_log_rows) 
     }));
   }
   if (log_rows.empty()) return out;
+  Result<int64_t> max_key = db_->QueryInt("SELECT coalesce(max(id), 0) FROM series");
+  if (!max_key.ok()) return max_key.status();
+  const auto keys = static_cast<size_t>(*max_key) + 1;
   out.first_log_seq = log_rows.front().seq;
   out.last_log_seq = log_rows.back().seq;
   out.log_rows = static_cast<int64_t>(log_rows.size());
-  HugeBuffer log_bytes(total_bytes);
-  std::vector<LogRun, HugePageAllocator<LogRun>> runs;
-  runs.reserve(total_bytes / (sizeof(double) + 3) + 1);  // a run is at least 3 header bytes and one value
+  if (log_copy_.size() < total_bytes) log_copy_.resize(total_bytes);
+  // Calls visit(series, first_step, values, count) for every run of the copied log, in log order.
+  auto for_each_run = [&](auto visit) -> Status {
+    size_t at = 0;
+    for (const LogRow& row : log_rows) {
+      int64_t unknown = -1;
+      PLIMSOLL_RETURN_IF_ERROR(ForEachLogRun(row.seq, row.format, std::string_view(log_copy_.data() + at, row.bytes),
+                                             [&](int64_t series, int64_t first, const char* values, size_t count) {
+                                               if (series < 0 || static_cast<size_t>(series) >= keys) {
+                                                 unknown = series;
+                                               } else if (unknown < 0) {
+                                                 visit(static_cast<size_t>(series), first, values, count);
+                                               }
+                                             }));
+      if (unknown >= 0)
+        return Status::Corruption("history_log row " + std::to_string(row.seq) + " names series key " +
+                                  std::to_string(unknown) + ", which is not in the series table");
+      at += row.bytes;
+    }
+    return Status::Ok();
+  };
   size_t at = 0;
   for (const LogRow& row : log_rows) {
-    PLIMSOLL_RETURN_IF_ERROR(db_->ReadBlob("history_log", "points", row.seq, {log_bytes.data() + at, row.bytes}));
-    const std::string_view blob(log_bytes.data() + at, row.bytes);
-    PLIMSOLL_RETURN_IF_ERROR(ForEachLogRun(row.seq, row.format, blob,
-                                           [&](int64_t series, int64_t first, const char* values, size_t count) {
-                                             runs.push_back({series, first, count,
-                                                             static_cast<size_t>(values - log_bytes.data())});
-                                             out.points += static_cast<int64_t>(count);
-                                           }));
+    PLIMSOLL_RETURN_IF_ERROR(db_->ReadBlob("history_log", "points", row.seq, {log_copy_.data() + at, row.bytes}));
     at += row.bytes;
   }
-  // Stable: a series' runs keep log order, so a later value for a step still wins on read.
-  std::stable_sort(runs.begin(), runs.end(), [](const LogRun& a, const LogRun& b) { return a.series < b.series; });
+  series_run_starts_.assign(keys + 1, 0);
+  PLIMSOLL_RETURN_IF_ERROR(for_each_run([&](size_t series, int64_t, const char*, size_t count) {
+    ++series_run_starts_[series + 1];
+    out.points += static_cast<int64_t>(count);
+  }));
+  for (size_t k = 1; k <= keys; ++k) series_run_starts_[k] += series_run_starts_[k - 1];
+  series_run_cursor_.assign(series_run_starts_.begin(), series_run_starts_.end() - 1);
+  sorted_runs_.resize(series_run_starts_[keys]);
+  PLIMSOLL_RETURN_IF_ERROR(for_each_run([&](size_t series, int64_t first, const char* values, size_t count) {
+    sorted_runs_[series_run_cursor_[series]++] = {first, static_cast<uint64_t>(values - log_copy_.data()), count};
+  }));
   out.bytes.reserve(total_bytes);  // values move over one for one; run headers shrink or stay
-  const std::string_view all(log_bytes.data(), log_bytes.size());
-  for (size_t begin = 0, end = 0; begin < runs.size(); begin = end) {
-    while (end < runs.size() && runs[end].series == runs[begin].series) ++end;
-    AppendHistoryRows(out, runs[begin].series, std::span<const LogRun>(runs).subspan(begin, end - begin), all);
+  PackWriter writer(out, static_cast<size_t>(options_.history_chunk_points));
+  for (size_t key = 0; key < keys; ++key) {
+    const size_t begin = series_run_starts_[key], end = series_run_starts_[key + 1];
+    if (begin != end)
+      writer.AddSeries(static_cast<int64_t>(key), std::span<const SortedRun>(sorted_runs_).subspan(begin, end - begin),
+                       log_copy_.data());
   }
+  writer.Finish();
   return out;
 }
 
@@ -735,13 +876,15 @@ Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared, int64_t 
         Result<int64_t> gen = db_->QueryInt("SELECT coalesce(max(gen), 0) + 1 FROM history_generations");
         if (!gen.ok()) return gen.status();
         Result<Statement> insert = db_->Prepare(
-            "INSERT INTO history(gen, series, seq, min_step, max_step, count, format, points) "
-            "VALUES (?1, ?2, ?3, ?4, ?5, ?6, 2, ?7)");
+            "INSERT INTO history(seq, gen, first_series, last_series, min_step, max_step, count, format, directory, "
+            "points) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)");
         if (!insert.ok()) return insert.status();
         for (const PreparedCompaction::Row& r : prepared.rows) {
-          insert->Bind(1, *gen).Bind(2, r.series).Bind(3, next_history_seq_++).Bind(4, r.min_step);
-          insert->Bind(5, r.max_step).Bind(6, r.count);
-          insert->BindBlob(7, std::string_view(prepared.bytes.data() + r.offset, r.bytes), Statement::Bytes::kBorrow);
+          insert->Bind(1, next_history_seq_++).Bind(2, *gen).Bind(3, r.first_series).Bind(4, r.last_series);
+          insert->Bind(5, r.min_step).Bind(6, r.max_step).Bind(7, r.count).Bind(8, kHistoryFormatPack);
+          insert->BindBlob(9, std::string_view(prepared.directories.data() + r.directory_offset, r.directory_bytes),
+                           Statement::Bytes::kBorrow);
+          insert->BindBlob(10, std::string_view(prepared.bytes.data() + r.offset, r.bytes), Statement::Bytes::kBorrow);
           PLIMSOLL_RETURN_IF_ERROR(insert->Run());
         }
         Result<Statement> generation =
@@ -775,7 +918,7 @@ Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared, int64_t 
 Status Store::Impl::CompactHistory(int64_t max_log_rows) {
   if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
   const int64_t start = options_.clock->MonotonicNanos();
-  Result<PreparedCompaction> prepared = PrepareCompaction(max_log_rows);
+  Result<PreparedCompaction> prepared = PrepareCompaction(max_log_rows, {});
   if (!prepared.ok()) {
     ++counters_.compaction_failures;
     counters_.last_error = prepared.status().code();
@@ -985,39 +1128,57 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
                            });
     }));
   }
-  // Compacted rows are clustered by generation (key gen, series, seq): one probe per generation
-  // finds the series' rows and their step ranges; blobs are read only for the rows needed.
+  // Compacted rows, one probe per generation (index gen, last_series): a generation's rows are in
+  // series order, so the rows holding the series are the first ones whose last series is not
+  // before it, as long as their first series is not after it. Older single-series rows (formats
+  // 1 and 2) are read whole; a packed row only in the series' segment its directory names.
   struct Range {
-    int64_t gen, seq, min_step, max_step;
+    int64_t seq, format, min_step, max_step;
+    size_t offset, bytes;  // the series' part of the row's points
   };
   std::vector<Range> stored;
   {
+    Result<Statement> gens = db_->Prepare("SELECT gen FROM history_generations ORDER BY gen");
+    if (!gens.ok()) return gens.status();
     Result<Statement> rows = db_->Prepare(
-        "SELECT h.gen, h.seq, h.min_step, h.max_step FROM history_generations g CROSS JOIN history h "
-        "ON h.gen = g.gen AND h.series = ?1");
+        "SELECT seq, first_series, format, min_step, max_step, directory, length(points) FROM history "
+        "WHERE gen = ?1 AND last_series >= ?2 ORDER BY last_series, seq");
     if (!rows.ok()) return rows.status();
-    rows->Bind(1, *id);
-    PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*rows, [&](const Statement& row) {
-      stored.push_back({row.Int(0), row.Int(1), row.Int(2), row.Int(3)});
-      return Status::Ok();
+    PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*gens, [&](const Statement& gen) {
+      rows->Bind(1, gen.Int(0)).Bind(2, *id);
+      Status status;
+      for (;;) {
+        Result<bool> more = rows->Step();
+        if (!more.ok() || !*more || rows->Int(1) > *id) {
+          if (!more.ok()) status = more.status();
+          break;
+        }
+        const int64_t seq = rows->Int(0), format = rows->Int(2);
+        const auto bytes = static_cast<size_t>(rows->Int(6));
+        if (format != kHistoryFormatPack) {
+          stored.push_back({seq, format, rows->Int(3), rows->Int(4), 0, bytes});
+          continue;
+        }
+        Result<std::optional<PackEntry>> entry = FindPackEntry(seq, rows->BlobView(5), bytes, *id);
+        if (!entry.ok()) {
+          status = entry.status();
+          break;
+        }
+        if (*entry) stored.push_back({seq, kLogFormatRuns, (*entry)->min_step, (*entry)->max_step, (*entry)->offset, (*entry)->bytes});
+      }
+      rows->Reset();
+      return status;
     }));
   }
-  Result<Statement> blob = db_->Prepare("SELECT format, points FROM history WHERE gen = ?1 AND series = ?2 AND seq = ?3");
-  if (!blob.ok()) return blob.status();
-  // Calls visit(step, value) for every point of one row.
+  std::string part;
+  // Calls visit(step, value) for every point of the series in one row.
   auto read_row = [&](const Range& r, auto visit) -> Status {
-    blob->Bind(1, r.gen).Bind(2, *id).Bind(3, r.seq);
-    Result<bool> found = blob->Step();
-    Status status = found.ok() ? Status::Ok() : found.status();
-    if (status.ok() && *found) {
-      status = ForEachHistoryRun(*id, r.seq, blob->Int(0), r.min_step, blob->BlobView(1),
-                                 [&](int64_t first, const char* values, size_t count) {
-                                   for (size_t i = 0; i < count; ++i)
-                                     visit(first + static_cast<int64_t>(i), ValueAt(values, i));
-                                 });
-    }
-    blob->Reset();
-    return status;
+    part.resize(r.bytes);
+    PLIMSOLL_RETURN_IF_ERROR(
+        db_->ReadBlobPart("history", "points", r.seq, static_cast<int64_t>(r.offset), {part.data(), part.size()}));
+    return ForEachHistoryRun(*id, r.seq, r.format, r.min_step, part, [&](int64_t first, const char* values, size_t count) {
+      for (size_t i = 0; i < count; ++i) visit(first + static_cast<int64_t>(i), ValueAt(values, i));
+    });
   };
   // The newest stored step no later than through_step: the largest max_step up to it (a row's
   // max_step is a stored point), or a point inside a row that reaches past it.
@@ -1124,8 +1285,8 @@ Store::~Store() = default;
 
 Status Store::Commit(const CommitBatch& batch) { return impl_->Commit(batch); }
 Status Store::CompactHistory(int64_t max_log_rows) { return impl_->CompactHistory(max_log_rows); }
-Result<PreparedCompaction> Store::PrepareCompaction(int64_t max_log_rows) {
-  return impl_->PrepareCompaction(max_log_rows);
+Result<PreparedCompaction> Store::PrepareCompaction(int64_t max_log_rows, PreparedCompaction recycled) {
+  return impl_->PrepareCompaction(max_log_rows, std::move(recycled));
 }
 Status Store::ApplyCompaction(const PreparedCompaction& prepared) {
   return impl_->ApplyCompaction(prepared, impl_->options_.clock->MonotonicNanos());

@@ -108,6 +108,7 @@ void CommitWriter::Loop() {
                        applied.ToString());
         }
         compaction_in_progress_ = false;
+        spent_ = std::move(prepared);
         store_counters_ = store_->counters();
         RequestCompactionIfDue();
         continue;
@@ -155,12 +156,14 @@ void CommitWriter::RequestCompactionIfDue() {
 void CommitWriter::CompactLoop() {
   NameThisThread("plimsoll-compact");
   std::unique_ptr<store::Store> reader;  // opened at the first compaction
+  store::PreparedCompaction recycled;
   for (;;) {
     {
       std::unique_lock lock(mu_);
       cv_.wait(lock, [&] { return stop_ || compaction_wanted_; });
       if (stop_) return;
       compaction_wanted_ = false;
+      recycled = std::move(spent_);
     }
     const auto failed = [&](const Status& status) {
       std::lock_guard lock(mu_);
@@ -176,7 +179,7 @@ void CommitWriter::CompactLoop() {
       }
       reader = std::move(opened).value();
     }
-    Result<store::PreparedCompaction> prepared = reader->PrepareCompaction();
+    Result<store::PreparedCompaction> prepared = reader->PrepareCompaction(INT64_MAX, std::move(recycled));
     if (!prepared.ok()) {
       failed(prepared.status());
       continue;

@@ -91,6 +91,7 @@ class CommitWriter {
   bool compaction_wanted_ = false;                         // GUARDED_BY(mu_)
   bool compaction_in_progress_ = false;                    // GUARDED_BY(mu_): requested, not yet applied
   std::optional<store::PreparedCompaction> prepared_;      // GUARDED_BY(mu_)
+  store::PreparedCompaction spent_;  // GUARDED_BY(mu_): the last applied one, its buffers lent to the next
   std::thread compactor_;                      // started after every member it uses exists
   std::thread thread_;                         // last: started after every member exists
 };

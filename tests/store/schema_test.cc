@@ -144,7 +144,7 @@ TEST_CASE("a version 3 store's history log and chunks read back after migration,
     auto db = RawOpen(dir.File("store.db"));
     CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
     CHECK(Query(*db, "SELECT format FROM history_log") == 1);
-    CHECK(Query(*db, "SELECT count(*) FROM history WHERE series = 1 AND min_step = -3 AND max_step = -1") == 1);
+    CHECK(Query(*db, "SELECT count(*) FROM history WHERE first_series = 1 AND last_series = 1 AND min_step = -3 AND max_step = -1") == 1);
   }
   // New rows (format 2) after the old one; step 4 of a is corrected, which must win.
   CommitBatch batch;

@@ -376,8 +376,12 @@ TEST_CASE("history tail returns the last points across log and chunks, gaps as N
   check_a(30);
   check_a(73);
   check_a(500);
-  // 100 points in rows of at most 16 values: 35 from the first compaction (16 + 16 + 3), 64 from the second.
-  CHECK(Count(dir.File("store.db"), "history WHERE series = (SELECT id FROM series WHERE name = 'a')") == 7);
+  // 100 points in rows of at most 16 values: 35 from the first compaction (16 + 16 + 3, the last
+  // row packed with b's 10), 64 from the second.
+  CHECK(Count(dir.File("store.db"),
+              "history, (SELECT id FROM series WHERE name = 'a') a WHERE first_series <= a.id AND last_series >= a.id") ==
+        7);
+  CHECK(Count(dir.File("store.db"), "history WHERE gen = 1 AND first_series < last_series AND count = 13") == 1);
   // Each compaction is a generation of its own; a later one's rows sort after every earlier row.
   CHECK(Count(dir.File("store.db"), "history_generations") == 2);
   CHECK(Count(dir.File("store.db"), "history WHERE gen = 2 AND seq < (SELECT max(seq) FROM history WHERE gen = 1)") ==
@@ -519,6 +523,49 @@ TEST_CASE("a damaged history log row is reported as corruption naming the row", 
   Status compacted = store->CompactHistory();
   CHECK(compacted.code() == StatusCode::kCorruption);
   CHECK(Count(dir.File("store.db"), "history_log") == 2);  // nothing moved, nothing lost
+}
+
+TEST_CASE("a log row naming a series the store does not have is not compacted", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch b;
+  b.series = {{"a", "p", 0}};
+  b.history.Add("a", 0, 1.0);
+  REQUIRE(store->Commit(b).ok());
+  {
+    Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(dir.File("store.db"), SQLITE_OPEN_READWRITE);
+    REQUIRE(db.ok());
+    // Series key 9 (varint 09), first step 0, one value.
+    REQUIRE((*db)->Exec("INSERT INTO history_log(seq, count, points, format) VALUES (78, 1, x'0900010000000000000000', 2)")
+                .ok());
+  }
+  Status compacted = store->CompactHistory();
+  CHECK(compacted.code() == StatusCode::kCorruption);
+  CHECK(compacted.message().find("history_log row 78 names series key 9") != std::string::npos);
+  CHECK(Count(dir.File("store.db"), "history_log") == 2);
+}
+
+TEST_CASE("a damaged directory of a packed history row is reported as corruption naming the row", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  CommitBatch b;
+  b.series = {{"a", "p", 0}, {"b", "p", 0}};
+  b.history.Add("a", 0, 1.0);
+  b.history.Add("b", 0, 2.0);
+  REQUIRE(store->Commit(b).ok());
+  REQUIRE(store->CompactHistory().ok());
+  REQUIRE(store->HistoryTail("b", 5).ok());
+  {
+    Result<std::unique_ptr<SqliteDb>> db = SqliteDb::Open(dir.File("store.db"), SQLITE_OPEN_READWRITE);
+    REQUIRE(db.ok());
+    // Two entries announced, the second cut off after its series delta.
+    REQUIRE((*db)->Exec("UPDATE history SET directory = x'0202000000010a02'").ok());
+  }
+  Result<HistorySlice> tail = store->HistoryTail("b", 5);
+  REQUIRE_FALSE(tail.ok());
+  CHECK(tail.status().code() == StatusCode::kCorruption);
+  CHECK(tail.status().message().find("history row") != std::string::npos);
+  CHECK(tail.status().message().find("damaged directory") != std::string::npos);
 }
 
 TEST_CASE("a compaction prepared on a read-only store and applied by the writer equals one done in place", "[store]") {

@@ -60,16 +60,16 @@ struct StoreOptions {
   // Dead-letter raw records longer than this are truncated (bytes, clamped to 16..1 MiB); the
   // original size is kept in raw_size.
   int dead_letter_max_bytes = 4096;
-  // Most values in one compacted history row (clamped to 16..65536). A compaction adds each
-  // series' new points as new rows (never rewriting older ones), so rows hold what a series
-  // gained between compactions, up to this many values.
-  int history_chunk_points = 512;
-  // Commit moves the history log into per-series rows once it holds this many points
-  // (clamped to >= 1000). Higher: fewer, larger rows per series and less per-series overhead per
-  // point, longer pauses at compaction and slower history reads (a read scans the whole log).
-  // A compaction costs about one row insert per series (appended: rows are clustered by
-  // compaction generation), so at 100k series a small log pays that per few points. 3M points of
-  // the series-grouped log are ~25 MB, as many bytes as the 1M-point log of schema 2-3 (24 bytes a
+  // Most values in one compacted history row (clamped to 16..65536). A compaction writes the
+  // points the log held as new rows (never rewriting older ones), each packing many series in
+  // series order up to this many values (a series with more spans rows). Larger: fewer rows to
+  // insert per compaction; a history read still reads only its series' part of a row, but
+  // parses the row's whole directory (about 8 bytes a series).
+  int history_chunk_points = 8192;
+  // Commit moves the history log into packed history rows once it holds this many points
+  // (clamped to >= 1000). Higher: fewer generations (a history read probes each once), longer
+  // compactions and slower history reads (a read scans the whole log). 3M points of the
+  // series-grouped log are ~25 MB, as many bytes as the 1M-point log of schema 2-3 (24 bytes a
   // point) that reads scanned.
   int64_t history_compact_points = 3'000'000;
   // SQLite page size (bytes, a power of two in 512..65536) for a NEW store file; an existing
@@ -114,18 +114,24 @@ struct StoreCounters {
 };
 
 // The oldest history-log rows regrouped into the rows of one new history generation
-// (Store::PrepareCompaction), ready to be appended by the writing Store (ApplyCompaction).
+// (Store::PrepareCompaction), ready to be appended by the writing Store (ApplyCompaction). Each
+// row packs many series' points in series order (format 3, notes in DEVELOPERS.md, "History").
 struct PreparedCompaction {
   struct Row {
-    int64_t series = 0, min_step = 0, max_step = 0, count = 0;
-    size_t offset = 0, bytes = 0;  // the row's blob in `bytes`
+    int64_t first_series = 0, last_series = 0;  // series keys of its first and last directory entry
+    int64_t min_step = 0, max_step = 0, count = 0;
+    size_t offset = 0, bytes = 0;                      // its points blob in `bytes`
+    size_t directory_offset = 0, directory_bytes = 0;  // its directory blob in `directories`
   };
   int64_t first_log_seq = 0, last_log_seq = -1;  // the log rows it replaces (the oldest ones)
   int64_t log_rows = 0;
   int64_t points = 0;
   std::vector<Row> rows;                             // in key order (series, then log order)
-  std::vector<char, HugePageAllocator<char>> bytes;  // the rows' blobs back to back
+  std::vector<char, HugePageAllocator<char>> bytes;  // the rows' points blobs back to back
+  std::vector<char> directories;                     // the rows' directory blobs back to back
   bool empty() const { return log_rows == 0; }
+  // Empties it, keeping its buffers' capacity for the next compaction.
+  void Clear();
 };
 
 // One series with its current model and state, as loaded at start-up or shown by `inspect`.
@@ -177,8 +183,10 @@ class Store {
   // The expensive half of a compaction (reading and regrouping the log), for another thread
   // with its own Store on the same file (read-only is enough): reads up to `max_log_rows`
   // oldest log rows in one read transaction. Empty when the log is. Corruption naming the row
-  // when a log row does not parse.
-  Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows = INT64_MAX);
+  // when a log row does not parse. `recycled` (an applied compaction) lends its buffers: megabytes
+  // of freshly mapped memory cost more to fault in than to fill. This Store keeps its own
+  // scratch between calls for the same reason.
+  Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows = INT64_MAX, PreparedCompaction recycled = {});
   // Appends `prepared` as a new generation and deletes the log rows it replaces, in one
   // transaction. Aborted, nothing written, when those are no longer the oldest log rows as
   // prepared (another compaction moved them); Unavailable when read-only.
