@@ -381,6 +381,12 @@ class Store::Impl {
   // `started_ns`: when the compaction's work on this Store began (its time goes to the counters).
   Status ApplyCompaction(const PreparedCompaction& prepared, int64_t started_ns);
   bool compact_in_commit_ = true;
+  bool checkpoint_in_commit_ = true;
+  Status CheckpointWal();
+  // SQLite's WAL hook on a read-write connection, installed instead of its auto-checkpoint (which
+  // does the same when on): notes the WAL's length after each commit and checkpoints once it
+  // reaches wal_autocheckpoint_pages while checkpoint_in_commit_.
+  static int OnWalCommit(void* self, sqlite3* db, const char* schema, int frames);
   Status ForEachSeries(const std::function<Status(const StoredSeries&)>& visit);
   Result<StoredSeries> GetSeries(std::string_view name);
   Result<std::vector<StoredSeries>> ListSeries(size_t limit, std::string_view after_name);
@@ -927,6 +933,31 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
   return ApplyCompaction(*prepared, start);  // timed from the start: here the writer prepared it too
 }
 
+int Store::Impl::OnWalCommit(void* self, sqlite3* db, const char* schema, int frames) {
+  auto* impl = static_cast<Impl*>(self);
+  impl->counters_.wal_frames = frames;
+  const int limit = impl->options_.wal_autocheckpoint_pages;
+  if (impl->checkpoint_in_commit_ && limit > 0 && frames >= limit) {
+    const int64_t start = impl->options_.clock->MonotonicNanos();
+    // Passive, as SQLite's own: a checkpoint that cannot finish only leaves the WAL longer.
+    if (sqlite3_wal_checkpoint_v2(db, schema, SQLITE_CHECKPOINT_PASSIVE, nullptr, nullptr) == SQLITE_OK) {
+      ++impl->counters_.wal_checkpoints;
+      impl->counters_.wal_checkpoint_micros += (impl->options_.clock->MonotonicNanos() - start) / 1000;
+    }
+  }
+  return SQLITE_OK;
+}
+
+Status Store::Impl::CheckpointWal() {
+  if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
+  const int64_t start = options_.clock->MonotonicNanos();
+  const int rc = sqlite3_wal_checkpoint_v2(db_->raw(), "main", SQLITE_CHECKPOINT_PASSIVE, nullptr, nullptr);
+  if (rc != SQLITE_OK) return SqliteStatus(rc, "checkpointing the WAL of '" + db_->path() + "'", db_->raw());
+  ++counters_.wal_checkpoints;
+  counters_.wal_checkpoint_micros += (options_.clock->MonotonicNanos() - start) / 1000;
+  return Status::Ok();
+}
+
 Result<int64_t> Store::Impl::LookupSeries(std::string_view name) {
   // Readers may be separate connections whose in-memory map is stale, so ask the file.
   Result<Statement> stmt = db_->Prepare("SELECT id FROM series WHERE name = ?1");
@@ -1259,7 +1290,7 @@ Result<std::unique_ptr<Store>> Store::Open(StoreOptions options) {
     // Before journal_mode: a WAL file fixes the page size. A no-op on a file that has tables.
     pragmas = "PRAGMA page_size = " + std::to_string(options.page_bytes) + "; " + pragmas;
     pragmas += " PRAGMA journal_mode = WAL; PRAGMA synchronous = " + std::string(SynchronousName(options.synchronous)) +
-               "; PRAGMA wal_autocheckpoint = " + std::to_string(options.wal_autocheckpoint_pages) + ";";
+               ";";
   }
   Status status = conn.Exec(pragmas);
   if (!status.ok()) return status.WithContext("configuring store '" + options.path + "'");
@@ -1276,6 +1307,7 @@ Result<std::unique_ptr<Store>> Store::Open(StoreOptions options) {
   status = options.read_only ? CheckSchema(conn) : MigrateSchema(conn, LatestSchemaVersion());
   if (!status.ok()) return status;
   auto impl = std::make_unique<Impl>(std::move(options), std::move(*db));
+  if (!impl->options_.read_only) sqlite3_wal_hook(conn.raw(), &Impl::OnWalCommit, impl.get());
   PLIMSOLL_RETURN_IF_ERROR(impl->Load());
   return std::unique_ptr<Store>(new Store(std::move(impl)));
 }
@@ -1292,6 +1324,8 @@ Status Store::ApplyCompaction(const PreparedCompaction& prepared) {
   return impl_->ApplyCompaction(prepared, impl_->options_.clock->MonotonicNanos());
 }
 void Store::SetCompactInCommit(bool on) { impl_->compact_in_commit_ = on; }
+Status Store::CheckpointWal() { return impl_->CheckpointWal(); }
+void Store::SetCheckpointInCommit(bool on) { impl_->checkpoint_in_commit_ = on; }
 Status Store::ForEachSeries(const std::function<Status(const StoredSeries&)>& visit) {
   return impl_->ForEachSeries(visit);
 }

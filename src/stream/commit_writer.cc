@@ -11,9 +11,8 @@ namespace plimsoll::stream {
 
 namespace {
 
-store::StoreOptions ReaderOptions(const store::StoreOptions& writer) {
-  store::StoreOptions out = writer;
-  out.read_only = true;
+store::StoreOptions UpkeepOptions(const store::StoreOptions& writer) {
+  store::StoreOptions out = writer;  // read-write: a checkpoint writes the database file
   out.cache_kib = 8 * 1024;  // it reads the log once per compaction; the writer's cache matters more
   return out;
 }
@@ -23,11 +22,13 @@ store::StoreOptions ReaderOptions(const store::StoreOptions& writer) {
 CommitWriter::CommitWriter(std::unique_ptr<store::Store> store, Clock* clock)
     : store_(std::move(store)),
       clock_(clock),
-      reader_options_(ReaderOptions(store_->options())),
-      compact_points_(store_->options().history_compact_points) {
+      upkeep_options_(UpkeepOptions(store_->options())),
+      compact_points_(store_->options().history_compact_points),
+      checkpoint_pages_(store_->options().wal_autocheckpoint_pages) {
   if (!store_->options().read_only) {
     store_->SetCompactInCommit(false);
-    compactor_ = std::thread([this] { CompactLoop(); });
+    store_->SetCheckpointInCommit(false);
+    upkeep_ = std::thread([this] { UpkeepLoop(); });
   }
   thread_ = std::thread([this] { Loop(); });
 }
@@ -75,7 +76,7 @@ void CommitWriter::Stop() {
     cv_.notify_all();
   }
   if (thread_.joinable()) thread_.join();
-  if (compactor_.joinable()) compactor_.join();
+  if (upkeep_.joinable()) upkeep_.join();
 }
 
 store::StoreCounters CommitWriter::StoreCounters() const {
@@ -95,7 +96,7 @@ void CommitWriter::Loop() {
       cv_.wait(lock, [&] { return stop_ || (pending_ && !durable_) || prepared_; });
       if (stop_) return;
       if (prepared_) {
-        // Between two commits: append what the compaction thread prepared (the next batch, if
+        // Between two commits: append what the upkeep thread prepared (the next batch, if
         // one came meanwhile, waits for it; it is much shorter than preparing).
         store::PreparedCompaction prepared = std::move(*prepared_);
         prepared_.reset();
@@ -110,7 +111,7 @@ void CommitWriter::Loop() {
         compaction_in_progress_ = false;
         spent_ = std::move(prepared);
         store_counters_ = store_->counters();
-        RequestCompactionIfDue();
+        RequestUpkeepIfDue();
         continue;
       }
       batch = &*pending_;  // stays valid: only this thread resets pending_
@@ -126,7 +127,7 @@ void CommitWriter::Loop() {
       durable_ = std::move(pending_);
       pending_.reset();
       last_error_ = Status::Ok();
-      RequestCompactionIfDue();
+      RequestUpkeepIfDue();
       cv_.notify_all();
       continue;
     }
@@ -146,42 +147,69 @@ void CommitWriter::Loop() {
   }
 }
 
-void CommitWriter::RequestCompactionIfDue() {
-  if (!compactor_.joinable() || compaction_in_progress_ || store_counters_.log_points < compact_points_) return;
-  compaction_in_progress_ = true;
-  compaction_wanted_ = true;
-  cv_.notify_all();
+void CommitWriter::RequestUpkeepIfDue() {
+  if (!upkeep_.joinable()) return;
+  if (!compaction_in_progress_ && store_counters_.log_points >= compact_points_) {
+    compaction_in_progress_ = true;
+    compaction_wanted_ = true;
+    cv_.notify_all();
+  }
+  if (!checkpoint_wanted_ && checkpoint_pages_ > 0 && store_counters_.wal_frames >= checkpoint_pages_) {
+    checkpoint_wanted_ = true;
+    cv_.notify_all();
+  }
 }
 
-void CommitWriter::CompactLoop() {
-  NameThisThread("plimsoll-compact");
-  std::unique_ptr<store::Store> reader;  // opened at the first compaction
+void CommitWriter::UpkeepLoop() {
+  NameThisThread("plimsoll-upkeep");
+  std::unique_ptr<store::Store> upkeep;  // opened at the first request
   store::PreparedCompaction recycled;
   for (;;) {
+    bool checkpoint = false, compact = false;
     {
       std::unique_lock lock(mu_);
-      cv_.wait(lock, [&] { return stop_ || compaction_wanted_; });
+      cv_.wait(lock, [&] { return stop_ || compaction_wanted_ || checkpoint_wanted_; });
       if (stop_) return;
+      checkpoint = checkpoint_wanted_;
+      compact = compaction_wanted_;
       compaction_wanted_ = false;
-      recycled = std::move(spent_);
+      if (compact) recycled = std::move(spent_);
     }
-    const auto failed = [&](const Status& status) {
-      std::lock_guard lock(mu_);
-      counters_.compaction_errors.fetch_add(1, std::memory_order_relaxed);
-      spdlog::warn("history compaction could not be prepared (retried after a later commit): {}", status.ToString());
-      compaction_in_progress_ = false;
-    };
-    if (!reader) {
-      Result<std::unique_ptr<store::Store>> opened = store::Store::Open(reader_options_);
+    if (!upkeep) {
+      Result<std::unique_ptr<store::Store>> opened = store::Store::Open(upkeep_options_);
       if (!opened.ok()) {
-        failed(opened.status());
+        std::lock_guard lock(mu_);
+        spdlog::warn("store upkeep connection could not be opened (retried after a later commit): {}",
+                     opened.status().ToString());
+        counters_.checkpoint_errors.fetch_add(checkpoint ? 1 : 0, std::memory_order_relaxed);
+        counters_.compaction_errors.fetch_add(compact ? 1 : 0, std::memory_order_relaxed);
+        checkpoint_wanted_ = false;
+        if (compact) compaction_in_progress_ = false;
         continue;
       }
-      reader = std::move(opened).value();
+      upkeep = std::move(opened).value();
     }
-    Result<store::PreparedCompaction> prepared = reader->PrepareCompaction(INT64_MAX, std::move(recycled));
+    if (checkpoint) {
+      const int64_t start = clock_->MonotonicNanos();
+      Status status = upkeep->CheckpointWal();
+      std::lock_guard lock(mu_);
+      checkpoint_wanted_ = false;  // asked for again after a later commit while the WAL stays long
+      if (status.ok()) {
+        counters_.checkpoints.fetch_add(1, std::memory_order_relaxed);
+        counters_.checkpoint_micros.fetch_add((clock_->MonotonicNanos() - start) / 1000, std::memory_order_relaxed);
+      } else {
+        counters_.checkpoint_errors.fetch_add(1, std::memory_order_relaxed);
+        spdlog::warn("WAL checkpoint failed (the WAL grows until a later one): {}", status.ToString());
+      }
+    }
+    if (!compact) continue;
+    Result<store::PreparedCompaction> prepared = upkeep->PrepareCompaction(INT64_MAX, std::move(recycled));
     if (!prepared.ok()) {
-      failed(prepared.status());
+      std::lock_guard lock(mu_);
+      counters_.compaction_errors.fetch_add(1, std::memory_order_relaxed);
+      spdlog::warn("history compaction could not be prepared (retried after a later commit): {}",
+                   prepared.status().ToString());
+      compaction_in_progress_ = false;
       continue;
     }
     std::lock_guard lock(mu_);

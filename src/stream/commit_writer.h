@@ -9,11 +9,15 @@
 // (rate-limited); the batch is never dropped. Back-pressure: Submit blocks while a batch is in
 // flight, and the owner only calls it when it must (see Daemon).
 //
-// History compaction is split the same way: once the store's log holds history_compact_points
-// points, a second thread (`plimsoll-compact`) reads and regroups it on its own read-only
-// connection (Store::PrepareCompaction) while commits go on; the writer thread then only appends
-// the prepared rows between two commits (ApplyCompaction). Done inside Commit, the whole
-// compaction held up the next commit (0.7-1.3 s per 3M points at 100k series).
+// Store upkeep runs on a second thread (`plimsoll-upkeep`) with its own connection, so commits go
+// on meanwhile:
+// - History compaction: once the store's log holds history_compact_points points, that thread
+//   reads and regroups it (Store::PrepareCompaction); the writer thread then only appends the
+//   prepared rows between two commits (ApplyCompaction). Done inside Commit, the whole compaction
+//   held up the next commit (0.7-1.3 s per 3M points at 100k series).
+// - WAL checkpoints: once a commit leaves wal_autocheckpoint_pages pages in the WAL, that thread
+//   copies them into the database file (Store::CheckpointWal). Done by the writer after a large
+//   commit, one took ~0.2 s.
 //
 // Thread-safety: Submit/TakeDurable/WaitIdle/Stop from the owner thread; the writer thread is
 // internal. The mutex guards only the hand-over slots, never the per-observation path.
@@ -38,8 +42,11 @@ struct CommitWriterCounters {
   std::atomic<uint64_t> submit_waits{0};   // Submit calls that had to wait for the writer
   std::atomic<int64_t> submit_wait_micros{0};
   std::atomic<int64_t> last_commit_micros{0};
-  std::atomic<uint64_t> compactions_prepared{0};  // by the compaction thread
+  std::atomic<uint64_t> compactions_prepared{0};  // by the upkeep thread
   std::atomic<uint64_t> compaction_errors{0};     // preparations or applications that failed (retried later)
+  std::atomic<uint64_t> checkpoints{0};           // WAL checkpoints by the upkeep thread
+  std::atomic<int64_t> checkpoint_micros{0};
+  std::atomic<uint64_t> checkpoint_errors{0};     // failed ones (the WAL only grows until the next)
 };
 
 class CommitWriter {
@@ -71,14 +78,16 @@ class CommitWriter {
 
  private:
   void Loop();
-  void CompactLoop();
-  // After a commit (writer thread, mu_ held): asks for a compaction once the log is long enough.
-  void RequestCompactionIfDue();
+  void UpkeepLoop();
+  // After a commit (writer thread, mu_ held): asks for a compaction once the log is long enough
+  // and for a checkpoint once the WAL is.
+  void RequestUpkeepIfDue();
 
   std::unique_ptr<store::Store> store_;
   Clock* clock_;
-  store::StoreOptions reader_options_;  // the compaction thread's read-only connection
+  store::StoreOptions upkeep_options_;  // the upkeep thread's connection
   int64_t compact_points_;              // the store's history_compact_points
+  int64_t checkpoint_pages_;            // the store's wal_autocheckpoint_pages (0: never)
   CommitWriterCounters counters_;
   mutable std::mutex mu_;
   std::condition_variable cv_;
@@ -87,12 +96,13 @@ class CommitWriter {
   Status last_error_;                          // GUARDED_BY(mu_)
   store::StoreCounters store_counters_;        // GUARDED_BY(mu_)
   bool stop_ = false;                          // GUARDED_BY(mu_)
-  // Background compaction (see the file comment).
+  // Upkeep (see the file comment).
   bool compaction_wanted_ = false;                         // GUARDED_BY(mu_)
   bool compaction_in_progress_ = false;                    // GUARDED_BY(mu_): requested, not yet applied
+  bool checkpoint_wanted_ = false;                         // GUARDED_BY(mu_): requested, not yet run
   std::optional<store::PreparedCompaction> prepared_;      // GUARDED_BY(mu_)
   store::PreparedCompaction spent_;  // GUARDED_BY(mu_): the last applied one, its buffers lent to the next
-  std::thread compactor_;                      // started after every member it uses exists
+  std::thread upkeep_;                         // started after every member it uses exists
   std::thread thread_;                         // last: started after every member exists
 };
 

@@ -525,6 +525,41 @@ TEST_CASE("a damaged history log row is reported as corruption naming the row", 
   CHECK(Count(dir.File("store.db"), "history_log") == 2);  // nothing moved, nothing lost
 }
 
+TEST_CASE("WAL checkpoints run after commits, or on another connection when the writer leaves them", "[store]") {
+  TempDir dir;
+  StoreOptions options = TestOptions(dir);
+  options.wal_autocheckpoint_pages = 4;
+  auto commit_some = [](Store& store, int first) {
+    for (int i = first; i < first + 10; ++i) {
+      CommitBatch b;
+      if (i == 0) b.series = {{"a", "p", 0}};
+      b.states.push_back({"a", i, i, std::string(40'000, static_cast<char>('a' + i % 26))});
+      REQUIRE(store.Commit(b).ok());
+    }
+  };
+  auto writer = OpenOrDie(options);
+  commit_some(*writer, 0);
+  CHECK(writer->counters().wal_checkpoints > 0);  // as SQLite's own auto-checkpoint would
+  writer->SetCheckpointInCommit(false);
+  const uint64_t before = writer->counters().wal_checkpoints;
+  commit_some(*writer, 10);
+  CHECK(writer->counters().wal_checkpoints == before);
+  const int64_t ten_commits = writer->counters().wal_frames;  // the WAL started over at the first of them
+  CHECK(ten_commits >= 10);
+  auto upkeep = OpenOrDie(options);
+  REQUIRE(upkeep->CheckpointWal().ok());
+  CHECK(upkeep->counters().wal_checkpoints == 1);
+  // Once copied, the writer starts the WAL over at its next commit instead of growing it.
+  commit_some(*writer, 20);
+  CHECK(writer->counters().wal_frames <= ten_commits + 2);
+  options.read_only = true;
+  auto reader = OpenOrDie(options);
+  CHECK(reader->CheckpointWal().code() == StatusCode::kUnavailable);
+  Result<StoredSeries> a = reader->GetSeries("a");
+  REQUIRE(a.ok());
+  CHECK(a->state->step == 29);
+}
+
 TEST_CASE("a log row naming a series the store does not have is not compacted", "[store]") {
   TempDir dir;
   auto store = OpenOrDie(TestOptions(dir));

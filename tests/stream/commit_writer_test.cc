@@ -18,11 +18,13 @@ struct TempStore {
     fs::create_directories(dir);
   }
   ~TempStore() { fs::remove_all(dir); }
-  std::unique_ptr<store::Store> Open(bool read_only = false, int64_t compact_points = 3'000'000) const {
+  std::unique_ptr<store::Store> Open(bool read_only = false, int64_t compact_points = 3'000'000,
+                                     int checkpoint_pages = 4000) const {
     store::StoreOptions options;
     options.path = (dir / "w.db").string();
     options.read_only = read_only;
     options.history_compact_points = compact_points;
+    options.wal_autocheckpoint_pages = checkpoint_pages;
     auto opened = store::Store::Open(options);
     REQUIRE(opened.ok());
     return std::move(opened).value();
@@ -129,6 +131,30 @@ TEST_CASE("the writer compacts history on another thread while commits go on", "
   CHECK(tail->first_step == 0);
   REQUIRE(tail->values.size() == static_cast<size_t>(step));
   for (size_t i = 0; i < tail->values.size(); ++i) REQUIRE(tail->values[i] == static_cast<double>(i));
+}
+
+TEST_CASE("the writer leaves WAL checkpoints to its upkeep thread", "[stream]") {
+  TempStore temp;
+  CommitWriter writer(temp.Open(false, 3'000'000, /*checkpoint_pages=*/4), SystemClock());
+  constexpr int kCommits = 20;
+  std::string filler(40'000, 'x');  // a few pages a commit
+  for (int i = 0; i < kCommits; ++i) {
+    store::CommitBatch b = Batch(i);
+    b.states.front().encoded = filler;
+    writer.Submit(std::move(b));
+    REQUIRE(writer.WaitDurable(5'000).ok());
+    while (writer.TakeDurable()) {
+    }
+  }
+  for (int i = 0; i < 1000 && writer.counters().checkpoints.load() == 0; ++i)
+    std::this_thread::sleep_for(std::chrono::milliseconds(10));
+  writer.Stop();
+  CHECK(writer.counters().checkpoints.load() > 0);
+  CHECK(writer.counters().checkpoint_errors.load() == 0);
+  CHECK(writer.StoreCounters().wal_checkpoints == 0);  // none on the writer's own connection
+  CHECK(writer.StoreCounters().commits == kCommits);
+  auto reader = temp.Open(/*read_only=*/true);
+  CHECK(reader->StoredPosition("file:/x", 0) == kCommits);
 }
 
 }  // namespace plimsoll::stream

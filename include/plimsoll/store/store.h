@@ -110,6 +110,9 @@ struct StoreCounters {
   int64_t compaction_micros = 0;
   int64_t max_compaction_micros = 0;  // the longest one
   int64_t log_points = 0;             // history points in the log awaiting compaction
+  int64_t wal_frames = 0;             // pages in the WAL after this Store's last commit
+  uint64_t wal_checkpoints = 0;       // WAL checkpoints this Store ran (after commits or CheckpointWal)
+  int64_t wal_checkpoint_micros = 0;  // their time
   StatusCode last_error = StatusCode::kOk;  // code of the most recent failure
 };
 
@@ -195,6 +198,17 @@ class Store {
   // default). A writer that prepares compactions on another thread turns this off and watches
   // StoreCounters::log_points.
   void SetCompactInCommit(bool on);
+
+  // Copies the WAL's committed pages into the database file on this connection: a passive
+  // checkpoint, which never waits for the writer or readers and leaves what it cannot copy yet.
+  // Unavailable when read-only. For a second read-write Store that takes checkpoints off the writer.
+  Status CheckpointWal();
+  // Whether the writer checkpoints the WAL itself once a commit leaves it holding
+  // wal_autocheckpoint_pages pages (the default, as SQLite's own auto-checkpoint). Done in the
+  // commit, a checkpoint after a large one held the writer for ~0.2 s in a measurement on the
+  // project's VM (DEVELOPERS.md, "Store figures"); a writer with another connection checkpointing
+  // turns this off and watches StoreCounters::wal_frames.
+  void SetCheckpointInCommit(bool on);
 
   // Calls `visit` for every series in id order with its model and state (start-up load).
   // Stops and returns the first non-OK status `visit` returns.
