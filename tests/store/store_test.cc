@@ -478,29 +478,40 @@ TEST_CASE("history keeps points across long gaps and late corrections after comp
   CHECK(last->values[2] == 1001.0);
 }
 
-TEST_CASE("a commit's history is logged as one run per series of consecutive steps", "[store]") {
+TEST_CASE("a commit's history is logged in batch order, a series' consecutive steps as one run", "[store]") {
   TempDir dir;
   auto store = OpenOrDie(TestOptions(dir));
   CommitBatch b;
   b.series = {{"a", "p", 0}, {"b", "p", 0}};
-  // 100 steps of each series, interleaved as the engine emits them, then a repeat of a's step 99.
+  // 100 steps of a in a row, then 100 of b interleaved with a repeat of each of a's steps.
+  for (int64_t step = 0; step < 100; ++step) b.history.Add("a", step, static_cast<double>(step));
   for (int64_t step = 0; step < 100; ++step) {
-    b.history.Add("a", step, static_cast<double>(step));
     b.history.Add("b", step, -static_cast<double>(step));
+    if (step == 99) b.history.Add("a", 99, 990.0);
   }
-  b.history.Add("a", 99, 990.0);
   REQUIRE(store->Commit(b).ok());
-  // Three runs (a 0..99, a 99, b 0..99): 201 values and a few header bytes each, not 24 bytes a point.
+  // Three runs (a 0..99, b 0..99, a 99): 201 values and a few header bytes each, not 24 bytes a point.
   CHECK(Count(dir.File("store.db"), "history_log WHERE format = 2 AND count = 201") == 1);
   CHECK(Count(dir.File("store.db"), "history_log WHERE length(points) <= 201 * 8 + 3 * 6") == 1);
-  Result<HistorySlice> a = store->HistoryTail("a", 2);
+  // Interleaved points are runs of one each; compaction groups them by series.
+  CommitBatch c;
+  for (int64_t step = 100; step < 110; ++step) {
+    c.history.Add("a", step, static_cast<double>(step));
+    c.history.Add("b", step, -static_cast<double>(step));
+  }
+  REQUIRE(store->Commit(c).ok());
+  CHECK(Count(dir.File("store.db"), "history_log WHERE count = 20 AND length(points) >= 20 * (8 + 3)") == 1);
+  REQUIRE(store->CompactHistory().ok());
+  CHECK(Count(dir.File("store.db"), "history WHERE length(points) <= 221 * 8 + 4 * 6") == 1);
+  Result<HistorySlice> a = store->HistoryTail("a", 2, 99);
   REQUIRE(a.ok());
   CHECK(a->first_step == 98);
   CHECK(a->values == std::vector<double>{98, 990});  // the later point for step 99 wins
-  Result<HistorySlice> bt = store->HistoryTail("b", 100);
+  Result<HistorySlice> bt = store->HistoryTail("b", 110);
   REQUIRE(bt.ok());
-  CHECK(bt->values.size() == 100);
-  CHECK(bt->values.back() == -99);
+  CHECK(bt->values.size() == 110);
+  CHECK(bt->values[99] == -99);
+  CHECK(bt->values.back() == -109);
 }
 
 TEST_CASE("a damaged history log row is reported as corruption naming the row", "[store]") {
