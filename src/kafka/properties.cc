@@ -21,6 +21,13 @@ Properties ConsumerDefaults() {
       {"enable.partition.eof", "false"},
       {"client.id", "plimsoll"},
       {"log.connection.close", "false"},
+      // librdkafka 2.0 stops fetching a partition for a fixed second once its local queue passes
+      // either threshold, even if the application drains it meanwhile (2.1 added
+      // fetch.queue.backoff.ms). With the default 100k messages a lagging daemon reading small
+      // records stalled ~0.5 s at a time (pipeline bench rounds at 0.44-0.49 of plain consume):
+      // let the byte bound decide, and make it hold a second or two of small records.
+      {"queued.min.messages", "1000000"},
+      {"queued.max.messages.kbytes", "131072"},
   };
 }
 
