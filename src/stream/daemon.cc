@@ -214,7 +214,16 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_
   std::vector<uint32_t>& history_slot = pending.history_slot;
   if (history_slot.size() < engine.series_count()) history_slot.resize(engine.series_count(), kNoSlot);
   out.history.points.reserve(batch.history.size());
-  for (const HistoryPoint& h : batch.history) {
+  // Names and slots are read at random over megabytes at 100k series: fetch a later point's while
+  // this one is copied (the name loads were 70% of this function's time).
+  constexpr size_t kAhead = 8;
+  for (size_t k = 0; k < batch.history.size(); ++k) {
+    if (k + kAhead < batch.history.size()) {
+      const SeriesId later = batch.history[k + kAhead].series;
+      __builtin_prefetch(&name(later));
+      __builtin_prefetch(&history_slot[later]);
+    }
+    const HistoryPoint& h = batch.history[k];
     uint32_t& slot = history_slot[h.series];
     if (slot == kNoSlot) {
       slot = static_cast<uint32_t>(out.history.series.size());
