@@ -184,6 +184,28 @@ DROP TABLE history;
 ALTER TABLE history_packed RENAME TO history;
 CREATE INDEX history_by_series ON history(gen, last_series);
 )sql"},
+    {8, "flags appended in arrival order; (series, step) stays unique through a small index",
+     R"sql(
+-- Keyed by (series, step), each group commit's flags landed on as many table pages as flags (a
+-- few MB of WAL per commit at 100k series); rows now append, and only the index's small entries
+-- go in at random.
+CREATE TABLE flags_by_arrival (
+  id       INTEGER PRIMARY KEY,
+  series   INTEGER NOT NULL REFERENCES series(id),
+  step     INTEGER NOT NULL,
+  time_ms  INTEGER NOT NULL,
+  value    REAL, expected REAL, lower REAL, upper REAL,
+  level    REAL, score REAL,
+  form     TEXT NOT NULL
+);
+INSERT INTO flags_by_arrival(series, step, time_ms, value, expected, lower, upper, level, score, form)
+  SELECT series, step, time_ms, value, expected, lower, upper, level, score, form FROM flags
+  ORDER BY time_ms, series, step;
+DROP TABLE flags;
+ALTER TABLE flags_by_arrival RENAME TO flags;
+CREATE UNIQUE INDEX flags_by_series ON flags(series, step);
+CREATE INDEX flags_by_time ON flags(time_ms);
+)sql"},
 };
 
 Result<int64_t> UserVersion(SqliteDb& db) { return db.QueryInt("PRAGMA user_version"); }

@@ -58,7 +58,8 @@ TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store
     CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'history'") == 0);
     REQUIRE(db->Exec("INSERT INTO series(id, name, profile, created_ms) VALUES (7, 'queue-a', 'calls', 1000);"
                      "INSERT INTO state(series, step, time_ms, encoded) VALUES (7, 42, 5000, x'00ff10');"
-                     "INSERT INTO source_positions VALUES ('file:/x.csv', 0, 1234);")
+                     "INSERT INTO source_positions VALUES ('file:/x.csv', 0, 1234);"
+                     "INSERT INTO flags VALUES (7, 40, 4000, 9.5, 5, 4, 6, 0.99, 3.1, 'ETS(A,N,N)');")
                 .ok());
   }
   auto store = testing::OpenOrDie(testing::TestOptions(dir));
@@ -76,6 +77,17 @@ TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store
   REQUIRE(tail.ok());
   CHECK(tail->first_step == 43);
   CHECK(tail->values == std::vector<double>{1.5});
+  // The flag kept its fields through version 8's table, which still ignores a repeat of it.
+  CommitBatch again;
+  again.flags.push_back({"queue-a", 40, 4000, 1, 2, 3, 4, 0.9, 1, "ETS(A,N,N)"});
+  again.flags.push_back({"queue-a", 41, 4100, 10, 5, 4, 6, 0.99, 4.0, "ETS(A,N,N)"});
+  REQUIRE(store->Commit(again).ok());
+  CHECK(store->counters().flags_duplicate == 1);
+  Result<std::vector<FlagRecord>> flags = store->RecentFlags("queue-a", 10);
+  REQUIRE(flags.ok());
+  REQUIRE(flags->size() == 2);
+  CHECK(flags->back() == FlagRecord{"queue-a", 40, 4000, 9.5, 5, 4, 6, 0.99, 3.1, "ETS(A,N,N)"});
+  CHECK(flags->front().step == 41);
   store.reset();
   auto db = RawOpen(dir.File("store.db"));
   CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
