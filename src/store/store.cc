@@ -950,6 +950,7 @@ Status Store::Impl::CheckpointWal() {
   if (options_.read_only) return Status::Unavailable("store '" + db_->path() + "' is open read-only");
   const int64_t start = options_.clock->MonotonicNanos();
   const int rc = sqlite3_wal_checkpoint_v2(db_->raw(), "main", SQLITE_CHECKPOINT_PASSIVE, nullptr, nullptr);
+  if ((rc & 0xFF) == SQLITE_BUSY) return Status::Ok();  // another connection is checkpointing: it copies them
   if (rc != SQLITE_OK) return SqliteStatus(rc, "checkpointing the WAL of '" + db_->path() + "'", db_->raw());
   ++counters_.wal_checkpoints;
   counters_.wal_checkpoint_micros += (options_.clock->MonotonicNanos() - start) / 1000;

@@ -22,13 +22,22 @@ store::StoreOptions UpkeepOptions(const store::StoreOptions& writer) {
 CommitWriter::CommitWriter(std::unique_ptr<store::Store> store, Clock* clock)
     : store_(std::move(store)),
       clock_(clock),
-      upkeep_options_(UpkeepOptions(store_->options())),
       compact_points_(store_->options().history_compact_points),
       checkpoint_pages_(store_->options().wal_autocheckpoint_pages) {
   if (!store_->options().read_only) {
-    store_->SetCompactInCommit(false);
-    store_->SetCheckpointInCommit(false);
-    upkeep_ = std::thread([this] { UpkeepLoop(); });
+    // Opened here, before any commit: opened beside a busy writer, the connection took tens of
+    // commits to open and meanwhile the writer's checkpoints met SQLITE_BUSY.
+    Result<std::unique_ptr<store::Store>> upkeep = store::Store::Open(UpkeepOptions(store_->options()));
+    if (upkeep.ok()) {
+      store_->SetCompactInCommit(false);
+      store_->SetCheckpointInCommit(false);
+      upkeep_ = std::thread([this, connection = std::move(upkeep).value()]() mutable {
+        UpkeepLoop(std::move(connection));
+      });
+    } else {
+      spdlog::warn("store upkeep connection could not be opened; the writer compacts and checkpoints itself: {}",
+                   upkeep.status().ToString());
+    }
   }
   thread_ = std::thread([this] { Loop(); });
 }
@@ -93,8 +102,22 @@ void CommitWriter::Loop() {
     {
       std::unique_lock lock(mu_);
       // A durable batch must be taken before the next one is written, so hand-back stays in order.
-      cv_.wait(lock, [&] { return stop_ || (pending_ && !durable_) || prepared_; });
+      cv_.wait(lock, [&] { return stop_ || (pending_ && !durable_) || prepared_ || finish_checkpoint_; });
       if (stop_) return;
+      if (finish_checkpoint_ && !prepared_) {
+        // The upkeep thread copied the bulk of the WAL; copying the rest here, with no commit
+        // running, lets the next commit start the WAL over.
+        finish_checkpoint_ = false;
+        lock.unlock();
+        Status finished = store_->CheckpointWal();
+        lock.lock();
+        if (!finished.ok()) {
+          counters_.checkpoint_errors.fetch_add(1, std::memory_order_relaxed);
+          spdlog::warn("WAL checkpoint on the writer failed (the WAL grows until a later one): {}", finished.ToString());
+        }
+        store_counters_ = store_->counters();
+        continue;
+      }
       if (prepared_) {
         // Between two commits: append what the upkeep thread prepared (the next batch, if
         // one came meanwhile, waits for it; it is much shorter than preparing).
@@ -154,15 +177,21 @@ void CommitWriter::RequestUpkeepIfDue() {
     compaction_wanted_ = true;
     cv_.notify_all();
   }
-  if (!checkpoint_wanted_ && checkpoint_pages_ > 0 && store_counters_.wal_frames >= checkpoint_pages_) {
+  // The WAL restarted (a checkpoint copied all of it): count its growth from the start again.
+  if (store_counters_.wal_frames < checkpointed_frames_) checkpointed_frames_ = 0;
+  if (checkpoint_pages_ <= 0) return;
+  if (!checkpoint_wanted_ && store_counters_.wal_frames >= checkpointed_frames_ + checkpoint_pages_ / 4) {
     checkpoint_wanted_ = true;
+    checkpointed_frames_ = store_counters_.wal_frames;
     cv_.notify_all();
   }
+  // At the threshold the writer checkpoints between commits as SQLite would after one (again
+  // after each commit while the WAL stays that long), finding most of it copied already.
+  if (store_counters_.wal_frames >= checkpoint_pages_) finish_checkpoint_ = true;
 }
 
-void CommitWriter::UpkeepLoop() {
+void CommitWriter::UpkeepLoop(std::unique_ptr<store::Store> upkeep) {
   NameThisThread("plimsoll-upkeep");
-  std::unique_ptr<store::Store> upkeep;  // opened at the first request
   store::PreparedCompaction recycled;
   for (;;) {
     bool checkpoint = false, compact = false;
@@ -175,26 +204,14 @@ void CommitWriter::UpkeepLoop() {
       compaction_wanted_ = false;
       if (compact) recycled = std::move(spent_);
     }
-    if (!upkeep) {
-      Result<std::unique_ptr<store::Store>> opened = store::Store::Open(upkeep_options_);
-      if (!opened.ok()) {
-        std::lock_guard lock(mu_);
-        spdlog::warn("store upkeep connection could not be opened (retried after a later commit): {}",
-                     opened.status().ToString());
-        counters_.checkpoint_errors.fetch_add(checkpoint ? 1 : 0, std::memory_order_relaxed);
-        counters_.compaction_errors.fetch_add(compact ? 1 : 0, std::memory_order_relaxed);
-        checkpoint_wanted_ = false;
-        if (compact) compaction_in_progress_ = false;
-        continue;
-      }
-      upkeep = std::move(opened).value();
-    }
     if (checkpoint) {
       const int64_t start = clock_->MonotonicNanos();
       Status status = upkeep->CheckpointWal();
       std::lock_guard lock(mu_);
       checkpoint_wanted_ = false;  // asked for again after a later commit while the WAL stays long
       if (status.ok()) {
+        finish_checkpoint_ = true;
+        cv_.notify_all();
         counters_.checkpoints.fetch_add(1, std::memory_order_relaxed);
         counters_.checkpoint_micros.fetch_add((clock_->MonotonicNanos() - start) / 1000, std::memory_order_relaxed);
       } else {

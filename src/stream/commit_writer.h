@@ -15,9 +15,13 @@
 //   reads and regroups it (Store::PrepareCompaction); the writer thread then only appends the
 //   prepared rows between two commits (ApplyCompaction). Done inside Commit, the whole compaction
 //   held up the next commit (0.7-1.3 s per 3M points at 100k series).
-// - WAL checkpoints: once a commit leaves wal_autocheckpoint_pages pages in the WAL, that thread
-//   copies them into the database file (Store::CheckpointWal). Done by the writer after a large
-//   commit, one took ~0.2 s.
+// - WAL checkpoints: each time commits add a quarter of wal_autocheckpoint_pages to the WAL, that
+//   thread copies what is there into the database file (Store::CheckpointWal); the writer then
+//   copies the few pages committed meanwhile between two commits, which lets the next commit
+//   start the WAL over (checkpoints beside a busy writer never catch up: the WAL grew without
+//   bound). Done wholly by the writer after a large commit, as SQLite's auto-checkpoint does, one
+//   took ~0.2 s. The writer also checkpoints between commits while the WAL holds
+//   wal_autocheckpoint_pages or more, as SQLite would after a commit.
 //
 // Thread-safety: Submit/TakeDurable/WaitIdle/Stop from the owner thread; the writer thread is
 // internal. The mutex guards only the hand-over slots, never the per-observation path.
@@ -78,14 +82,13 @@ class CommitWriter {
 
  private:
   void Loop();
-  void UpkeepLoop();
+  void UpkeepLoop(std::unique_ptr<store::Store> upkeep);
   // After a commit (writer thread, mu_ held): asks for a compaction once the log is long enough
   // and for a checkpoint once the WAL is.
   void RequestUpkeepIfDue();
 
   std::unique_ptr<store::Store> store_;
   Clock* clock_;
-  store::StoreOptions upkeep_options_;  // the upkeep thread's connection
   int64_t compact_points_;              // the store's history_compact_points
   int64_t checkpoint_pages_;            // the store's wal_autocheckpoint_pages (0: never)
   CommitWriterCounters counters_;
@@ -100,6 +103,8 @@ class CommitWriter {
   bool compaction_wanted_ = false;                         // GUARDED_BY(mu_)
   bool compaction_in_progress_ = false;                    // GUARDED_BY(mu_): requested, not yet applied
   bool checkpoint_wanted_ = false;                         // GUARDED_BY(mu_): requested, not yet run
+  int64_t checkpointed_frames_ = 0;  // GUARDED_BY(mu_): the WAL's length at the last request
+  bool finish_checkpoint_ = false;   // GUARDED_BY(mu_): the writer copies the rest between commits
   std::optional<store::PreparedCompaction> prepared_;      // GUARDED_BY(mu_)
   store::PreparedCompaction spent_;  // GUARDED_BY(mu_): the last applied one, its buffers lent to the next
   std::thread upkeep_;                         // started after every member it uses exists

@@ -201,13 +201,16 @@ class Store {
 
   // Copies the WAL's committed pages into the database file on this connection: a passive
   // checkpoint, which never waits for the writer or readers and leaves what it cannot copy yet.
-  // Unavailable when read-only. For a second read-write Store that takes checkpoints off the writer.
+  // OK without copying when another connection is checkpointing at the time (that one copies
+  // them). Unavailable when read-only. Once one has copied the whole WAL, the writer's next commit
+  // starts it over; one running beside a busy writer never catches up, so a writer that leaves
+  // the bulk to another connection finishes with a checkpoint of its own (stream::CommitWriter).
   Status CheckpointWal();
   // Whether the writer checkpoints the WAL itself once a commit leaves it holding
-  // wal_autocheckpoint_pages pages (the default, as SQLite's own auto-checkpoint). Done in the
-  // commit, a checkpoint after a large one held the writer for ~0.2 s in a measurement on the
-  // project's VM (DEVELOPERS.md, "Store figures"); a writer with another connection checkpointing
-  // turns this off and watches StoreCounters::wal_frames.
+  // wal_autocheckpoint_pages pages (the default, as SQLite's own auto-checkpoint). After a large
+  // commit one held the writer ~0.2 s in a measurement on the project's VM (DEVELOPERS.md, "Store
+  // figures"); a writer with another connection copying the bulk turns this off and watches
+  // StoreCounters::wal_frames.
   void SetCheckpointInCommit(bool on);
 
   // Calls `visit` for every series in id order with its model and state (start-up load).
