@@ -45,15 +45,8 @@ std::string_view AlertKindText(AlertKind kind) { return kind == AlertKind::kRais
 
 double RealOrNaN(const Statement& stmt, int col) { return stmt.IsNull(col) ? kNoValue : stmt.Real(col); }
 
-void PutVarint(std::string& out, uint64_t v) {
-  while (v >= 0x80) {
-    out.push_back(static_cast<char>((v & 0x7F) | 0x80));
-    v >>= 7;
-  }
-  out.push_back(static_cast<char>(v));
-}
-
-// As PutVarint, into a buffer with room for 10 bytes; returns the end of what it wrote.
+// Writes `v` as a varint (7 bits a byte, low first) into a buffer with room for 10 bytes;
+// returns the end of what it wrote.
 char* PutVarintTo(char* out, uint64_t v) {
   while (v >= 0x80) {
     *out++ = static_cast<char>((v & 0x7F) | 0x80);
@@ -61,6 +54,11 @@ char* PutVarintTo(char* out, uint64_t v) {
   }
   *out++ = static_cast<char>(v);
   return out;
+}
+
+void PutVarint(std::string& out, uint64_t v) {
+  char bytes[10];
+  out.append(bytes, PutVarintTo(bytes, v));
 }
 
 bool GetVarint(std::string_view blob, size_t& at, uint64_t& v) {
@@ -875,8 +873,8 @@ Status Store::Impl::ApplyCompaction(const PreparedCompaction& prepared, int64_t 
                                    " is stale: those are no longer the oldest log rows");
           }
         }
-        // A new generation: its rows sort after every stored row (key gen, series, seq), so the
-        // inserts append to the table instead of touching every series' pages.
+        // A new generation: its rows take the next seqs (the rowid) and the highest gen, so the
+        // inserts append to the table and to its index instead of touching older pages.
         Result<int64_t> gen = db_->QueryInt("SELECT coalesce(max(gen), 0) + 1 FROM history_generations");
         if (!gen.ok()) return gen.status();
         Result<Statement> insert = db_->Prepare(
@@ -931,18 +929,12 @@ Status Store::Impl::CompactHistory(int64_t max_log_rows) {
   return ApplyCompaction(*prepared, start);  // timed from the start: here the writer prepared it too
 }
 
-int Store::Impl::OnWalCommit(void* self, sqlite3* db, const char* schema, int frames) {
+int Store::Impl::OnWalCommit(void* self, sqlite3* /*db*/, const char* /*schema*/, int frames) {
   auto* impl = static_cast<Impl*>(self);
   impl->counters_.wal_frames = frames;
   const int limit = impl->options_.wal_autocheckpoint_pages;
-  if (impl->checkpoint_in_commit_ && limit > 0 && frames >= limit) {
-    const int64_t start = impl->options_.clock->MonotonicNanos();
-    // Passive, as SQLite's own: a checkpoint that cannot finish only leaves the WAL longer.
-    if (sqlite3_wal_checkpoint_v2(db, schema, SQLITE_CHECKPOINT_PASSIVE, nullptr, nullptr) == SQLITE_OK) {
-      ++impl->counters_.wal_checkpoints;
-      impl->counters_.wal_checkpoint_micros += (impl->options_.clock->MonotonicNanos() - start) / 1000;
-    }
-  }
+  // Passive, as SQLite's own: a checkpoint that fails or cannot finish only leaves the WAL longer.
+  if (impl->checkpoint_in_commit_ && limit > 0 && frames >= limit) IgnoreError(impl->CheckpointWal());
   return SQLITE_OK;
 }
 
@@ -1194,7 +1186,10 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
           status = entry.status();
           break;
         }
-        if (*entry) stored.push_back({seq, kLogFormatRuns, (*entry)->min_step, (*entry)->max_step, (*entry)->offset, (*entry)->bytes});
+        if (*entry) {
+          const PackEntry& e = **entry;
+          stored.push_back({seq, kLogFormatRuns, e.min_step, e.max_step, e.offset, e.bytes});
+        }
       }
       rows->Reset();
       return status;
@@ -1204,11 +1199,13 @@ Result<HistorySlice> Store::Impl::HistoryTail(std::string_view series, size_t n,
   // Calls visit(step, value) for every point of the series in one row.
   auto read_row = [&](const Range& r, auto visit) -> Status {
     part.resize(r.bytes);
-    PLIMSOLL_RETURN_IF_ERROR(
-        db_->ReadBlobPart("history", "points", r.seq, static_cast<int64_t>(r.offset), {part.data(), part.size()}));
-    return ForEachHistoryRun(*id, r.seq, r.format, r.min_step, part, [&](int64_t first, const char* values, size_t count) {
-      for (size_t i = 0; i < count; ++i) visit(first + static_cast<int64_t>(i), ValueAt(values, i));
-    });
+    PLIMSOLL_RETURN_IF_ERROR(db_->ReadBlobPart("history", "points", r.seq, static_cast<int64_t>(r.offset),
+                                               {part.data(), part.size()}));
+    return ForEachHistoryRun(*id, r.seq, r.format, r.min_step, part,
+                             [&](int64_t first, const char* values, size_t count) {
+                               for (size_t i = 0; i < count; ++i)
+                                 visit(first + static_cast<int64_t>(i), ValueAt(values, i));
+                             });
   };
   // The newest stored step no later than through_step: the largest max_step up to it (a row's
   // max_step is a stored point), or a point inside a row that reaches past it.
@@ -1268,7 +1265,8 @@ Result<std::unique_ptr<Store>> Store::Open(StoreOptions options) {
   options.dead_letter_max_bytes = Clamp(options.dead_letter_max_bytes, 16, 1 << 20);
   options.history_chunk_points = Clamp(options.history_chunk_points, 16, 65'536);
   options.history_compact_points = std::max<int64_t>(options.history_compact_points, 1000);
-  if (options.page_bytes < 512 || options.page_bytes > 65'536 || !std::has_single_bit(static_cast<unsigned>(options.page_bytes)))
+  if (options.page_bytes < 512 || options.page_bytes > 65'536 ||
+      !std::has_single_bit(static_cast<unsigned>(options.page_bytes)))
     return Status::InvalidArgument("store page_bytes " + std::to_string(options.page_bytes) +
                                    " is not a power of two from 512 to 65536");
   options.cache_kib = Clamp(options.cache_kib, 64, 16 * 1024 * 1024);
