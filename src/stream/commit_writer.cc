@@ -113,7 +113,8 @@ void CommitWriter::Loop() {
         lock.lock();
         if (!finished.ok()) {
           counters_.checkpoint_errors.fetch_add(1, std::memory_order_relaxed);
-          spdlog::warn("WAL checkpoint on the writer failed (the WAL grows until a later one): {}", finished.ToString());
+          spdlog::warn("WAL checkpoint on the writer failed (the WAL grows until a later one): {}",
+                       finished.ToString());
         }
         store_counters_ = store_->counters();
         continue;
@@ -205,15 +206,19 @@ void CommitWriter::UpkeepLoop(std::unique_ptr<store::Store> upkeep) {
       if (compact) recycled = std::move(spent_);
     }
     if (checkpoint) {
-      const int64_t start = clock_->MonotonicNanos();
+      const store::StoreCounters before = upkeep->counters();
       Status status = upkeep->CheckpointWal();
+      // Counted from the connection's own figures: a checkpoint that met the writer's (SQLITE_BUSY)
+      // returns OK having copied nothing.
+      const store::StoreCounters& after = upkeep->counters();
       std::lock_guard lock(mu_);
       checkpoint_wanted_ = false;  // asked for again after a later commit while the WAL stays long
       if (status.ok()) {
         finish_checkpoint_ = true;
         cv_.notify_all();
-        counters_.checkpoints.fetch_add(1, std::memory_order_relaxed);
-        counters_.checkpoint_micros.fetch_add((clock_->MonotonicNanos() - start) / 1000, std::memory_order_relaxed);
+        counters_.checkpoints.fetch_add(after.wal_checkpoints - before.wal_checkpoints, std::memory_order_relaxed);
+        counters_.checkpoint_micros.fetch_add(after.wal_checkpoint_micros - before.wal_checkpoint_micros,
+                                              std::memory_order_relaxed);
       } else {
         counters_.checkpoint_errors.fetch_add(1, std::memory_order_relaxed);
         spdlog::warn("WAL checkpoint failed (the WAL grows until a later one): {}", status.ToString());
