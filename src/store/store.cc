@@ -381,6 +381,7 @@ class Store::Impl {
   Impl(StoreOptions options, std::unique_ptr<SqliteDb> db) : options_(std::move(options)), db_(std::move(db)) {}
 
   Status Load();
+  Status LoadSeriesKeys();
   Status Commit(const CommitBatch& batch);
   Status CompactHistory(int64_t max_log_rows);
   Result<PreparedCompaction> PrepareCompaction(int64_t max_log_rows, PreparedCompaction recycled);
@@ -425,7 +426,10 @@ class Store::Impl {
   Result<PreparedCompaction> ReadAndRegroupLog(int64_t max_log_rows, PreparedCompaction out);
 
   // Series name -> integer key for the writer; rolled back with the transaction that added names.
+  // Read at the first commit (LoadSeriesKeys), not at Open: readers and the upkeep connection,
+  // which never commit, would hold a copy of every name (100k at 100k series) for nothing.
   std::unordered_map<std::string, int64_t, StringHash, std::equal_to<>> series_ids_;
+  bool series_keys_loaded_ = false;
   std::vector<std::string> added_names_;
   // A short name is copied into the entry, so a hit costs one cache line, not a second one for
   // the map node; a longer one is compared through the node's string.
@@ -460,13 +464,19 @@ class Store::Impl {
   std::vector<size_t> series_run_cursor_;
 };
 
-Status Store::Impl::Load() {
+Status Store::Impl::LoadSeriesKeys() {
+  if (series_keys_loaded_) return Status::Ok();
   Result<Statement> ids = db_->Prepare("SELECT id, name FROM series");
   if (!ids.ok()) return ids.status();
   PLIMSOLL_RETURN_IF_ERROR(ForEachRow(*ids, [&](const Statement& row) {
     series_ids_.emplace(row.Text(1), row.Int(0));
     return Status::Ok();
   }));
+  series_keys_loaded_ = true;
+  return Status::Ok();
+}
+
+Status Store::Impl::Load() {
   Result<int64_t> pending = db_->QueryInt("SELECT coalesce(sum(count), 0) FROM history_log");
   if (!pending.ok()) return pending.status();
   log_points_ = *pending;
@@ -533,6 +543,8 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
   using B = Statement::Bytes;
   tally = Tally{};
   added_names_.clear();
+  // Inside the transaction: the names read are committed ones, valid whatever becomes of it.
+  PLIMSOLL_RETURN_IF_ERROR(LoadSeriesKeys());
   if (fail_after_rows_ == 0) PLIMSOLL_RETURN_IF_ERROR(CountRow(tally));
 
   if (!batch.series.empty()) {
