@@ -44,11 +44,15 @@ class AlertTracker {
   bool active() const { return active_; }
   void Reset() { *this = AlertTracker(); }
 
-  std::string Encode() const {
-    ByteWriter w;
+  static constexpr size_t kEncodedBytes = 8 + 4 + 1;
+  void EncodeTo(ByteWriter& w) const {
     w.Put(recent_);
     w.Put(in_band_run_);
     w.Put<uint8_t>(active_ ? 1 : 0);
+  }
+  std::string Encode() const {
+    ByteWriter w;
+    EncodeTo(w);
     return w.Take();
   }
   // Returns false (tracker unchanged) for malformed bytes.

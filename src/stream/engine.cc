@@ -623,7 +623,9 @@ Status Engine::Refit(SeriesId id, std::span<const double> history, std::string_v
 
 std::string Engine::EncodeCheckpoint(SeriesId id) const {
   const SeriesRuntime& s = impl_->series[id];
+  const size_t state_bytes = s.warming_up ? 0 : model::EncodedStateBytes(s.state);
   ByteWriter w;
+  w.Reserve(6 + 4 + 4 * 8 + 2 * 8 + 4 + 3 * 4 + StepAligner::kEncodedBytes + AlertTracker::kEncodedBytes + state_bytes);
   w.Put<uint8_t>(kCheckpointVersion);
   w.Put<uint8_t>(s.warming_up ? 1 : 0);
   w.Put<uint8_t>(s.additive_only ? 1 : 0);
@@ -638,9 +640,12 @@ std::string Engine::EncodeCheckpoint(SeriesId id) const {
   w.Put(s.last_time_ms);
   w.Put(s.next_fit_at);
   w.Put<uint32_t>(static_cast<uint32_t>(s.warmup_values.size()));
-  w.PutBytes(s.aligner.Encode());
-  w.PutBytes(s.alerts.Encode());
-  w.PutBytes(s.warming_up ? std::string() : model::EncodeState(s.state));
+  w.PutLength(StepAligner::kEncodedBytes);
+  s.aligner.EncodeTo(w);
+  w.PutLength(AlertTracker::kEncodedBytes);
+  s.alerts.EncodeTo(w);
+  w.PutLength(state_bytes);
+  if (!s.warming_up) model::AppendState(s.state, w.str());
   return w.Take();
 }
 

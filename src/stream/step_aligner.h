@@ -88,10 +88,14 @@ class StepAligner {
   int64_t open_step() const { return open_step_; }
 
   // Checkpoint of the grid position and the open bucket, so a restart continues exactly.
-  std::string Encode() const {
-    ByteWriter w;
+  static constexpr size_t kEncodedBytes = 6 * 8;
+  void EncodeTo(ByteWriter& w) const {
     for (int64_t v : {last_step_, open_step_, count_}) w.Put(v);
     for (double v : {sum_, max_, last_}) w.Put(v);
+  }
+  std::string Encode() const {
+    ByteWriter w;
+    EncodeTo(w);
     return w.Take();
   }
   // Returns false (aligner unchanged) for malformed bytes.

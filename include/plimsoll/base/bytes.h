@@ -8,6 +8,7 @@
 #include <cstring>
 #include <string>
 #include <string_view>
+#include <utility>
 
 namespace plimsoll {
 
@@ -15,6 +16,10 @@ static_assert(std::endian::native == std::endian::little, "blobs are little-endi
 
 class ByteWriter {
  public:
+  ByteWriter() = default;
+  // Appends to `out` (its contents and capacity are kept): encoders that know their size reserve
+  // once instead of growing a fresh string field by field.
+  explicit ByteWriter(std::string out) : out_(std::move(out)) {}
   template <typename T>
   void Put(T value) {
     static_assert(std::is_trivially_copyable_v<T>);
@@ -26,6 +31,9 @@ class ByteWriter {
     Put<uint32_t>(static_cast<uint32_t>(bytes.size()));
     out_.append(bytes);
   }
+  // The length prefix PutBytes writes, for a field whose `size` bytes follow through Put calls.
+  void PutLength(size_t size) { Put<uint32_t>(static_cast<uint32_t>(size)); }
+  void Reserve(size_t bytes) { out_.reserve(out_.size() + bytes); }
   std::string& str() { return out_; }
   std::string Take() { return std::move(out_); }
 

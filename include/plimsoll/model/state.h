@@ -45,5 +45,8 @@ std::vector<double> SeasonChronological(const State& state);
 // Encode/Decode round-trip bit-exactly. Decode fails with Corruption naming what is wrong.
 std::string EncodeState(const State& state);
 Result<State> DecodeState(std::string_view bytes);
+// The same encoding appended to `out`, and its length (checkpoints embed it without a copy).
+void AppendState(const State& state, std::string& out);
+size_t EncodedStateBytes(const State& state);
 
 }  // namespace plimsoll::model
