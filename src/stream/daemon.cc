@@ -426,9 +426,11 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       im.pending.offset_changed.resize(stream_count, false);
     }
     int64_t newest_record_ms = INT64_MIN;
+    const bool padded = source.PayloadsPadded();
     for (const RawRecord& rec : records) {
       DecodedRecord decoded;
-      Status status = decoder.Decode(rec, decoded);
+      Status status = padded ? decoder.DecodePadded(rec.key, rec.payload, rec.timestamp_ms, decoded)
+                             : decoder.Decode(rec, decoded);
       if (!status.ok()) {
         apply_decoded();  // dead letters stay in record order
         counters_.decode_errors.fetch_add(1, std::memory_order_relaxed);

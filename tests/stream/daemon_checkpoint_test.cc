@@ -56,6 +56,7 @@ Feed MakeFeed() {
       std::snprintf(line, sizeof line, "s-%03d,%lld,%.4f", i, static_cast<long long>(kT0 + 60LL * k), value);
       std::string text = line;
       if (k == 15 && s % 97 == 0) text = "s-" + std::to_string(i) + ",not-a-time,1";
+      if (k == 16 && s == 11) text = "{\"series\":\"s-" + std::to_string(i) + "\",\"time\":";  // cut-off JSON
       feed.lines.emplace_back(static_cast<int64_t>(feed.text.size()), static_cast<int64_t>(text.size()));
       feed.text += text + "\n";
       if (k == 30 && s == 5) {  // the same record again: a duplicate step
@@ -64,12 +65,14 @@ Feed MakeFeed() {
       }
     }
   }
+  feed.text.append(kRecordPadding, '\0');  // every line is followed by readable bytes (PayloadsPadded)
   return feed;
 }
 
 class FeedSource final : public testing::OneStreamSource {
  public:
-  FeedSource(const Feed& feed, int64_t from_offset) : OneStreamSource("feed"), feed_(feed) {
+  FeedSource(const Feed& feed, int64_t from_offset, bool padded = false)
+      : OneStreamSource("feed"), feed_(feed), padded_(padded) {
     while (next_ < feed_.lines.size() && feed_.lines[next_].first < from_offset) ++next_;
   }
   Status Poll(std::vector<RawRecord>& out, size_t max_records, int) override {
@@ -81,9 +84,11 @@ class FeedSource final : public testing::OneStreamSource {
     }
     return Status::Ok();
   }
+  bool PayloadsPadded() const override { return padded_; }
 
  private:
   const Feed& feed_;
+  const bool padded_;
   size_t next_ = 0;
 };
 
@@ -189,7 +194,7 @@ Outcome Read(const std::string& db) {
 }
 
 // Runs the daemon on `db` from its stored position to the end of the feed.
-void RunToEnd(const std::string& db, const Feed& feed, OutputSink* sink) {
+void RunToEnd(const std::string& db, const Feed& feed, OutputSink* sink, bool padded = false) {
   store::StoreOptions options;
   options.path = db;
   Result<std::unique_ptr<store::Store>> opened = store::Store::Open(options);
@@ -199,7 +204,7 @@ void RunToEnd(const std::string& db, const Feed& feed, OutputSink* sink) {
       Daemon::Open(Options(), Profiles(), Choose, std::move(opened).value(), &clock);
   REQUIRE(daemon.ok());
   const std::optional<int64_t> from = (*daemon)->Positions()(StreamId{"feed", 0});
-  FeedSource source(feed, from.value_or(0));
+  FeedSource source(feed, from.value_or(0), padded);
   RecordDecoder decoder;
   std::atomic<bool> stop{false};
   REQUIRE((*daemon)->Run(source, decoder, stop, sink).ok());
@@ -256,6 +261,28 @@ TEST_CASE("a restart from any committed transaction between checkpoints ends as 
   }
   CHECK(between >= 2);
   CHECK(between_warming >= 1);
+  fs::remove_all(dir);
+}
+
+TEST_CASE("records decoded in place from a padded source end as copied ones, bad records included",
+          "[stream][daemon]") {
+  const fs::path dir = fs::temp_directory_path() / ("plimsoll-padded-test-" + std::to_string(::getpid()));
+  fs::remove_all(dir);
+  fs::create_directories(dir);
+  const Feed feed = MakeFeed();
+  const std::string copied_db = (dir / "copied.db").string(), in_place_db = (dir / "in-place.db").string();
+  RunToEnd(copied_db, feed, nullptr, /*padded=*/false);
+  RunToEnd(in_place_db, feed, nullptr, /*padded=*/true);
+  const Outcome copied = Read(copied_db), in_place = Read(in_place_db);
+  REQUIRE(copied.states.size() == kSeries);
+  CHECK(in_place.states == copied.states);
+  CHECK(in_place.flags == copied.flags);
+  CHECK(in_place.alerts == copied.alerts);
+  CHECK(in_place.events == copied.events);
+  // Malformed times, the cut-off JSON object and the duplicate: the same dead letters, same
+  // reasons (that a reason never depends on the bytes after a record is decode_test's).
+  REQUIRE(copied.dead_letters.size() >= 5);
+  CHECK(in_place.dead_letters == copied.dead_letters);
   fs::remove_all(dir);
 }
 

@@ -49,6 +49,7 @@ class FileSource final : public RecordSource {
   // A paused source returns no records from Poll (immediately) until resumed.
   Status Pause(const StreamId&) override;
   Status Resume(const StreamId&) override;
+  bool PayloadsPadded() const override { return true; }
 
   // The offset the source started reading at (0, or the stored position it resumed from).
   int64_t start_offset() const { return start_offset_; }
@@ -79,6 +80,7 @@ class StdinSource final : public RecordSource {
   Status Acknowledge(std::span<const SourcePosition>) override { return Status::Ok(); }
   Status Pause(const StreamId&) override;
   Status Resume(const StreamId&) override;
+  bool PayloadsPadded() const override { return true; }
 
  private:
   StreamId stream_{"stdin", 0};

@@ -77,6 +77,11 @@ class RecordSource {
   // Stops fetching from / resumes a stream (back-pressure). Sources that cannot pause return OK.
   virtual Status Pause(const StreamId& stream) = 0;
   virtual Status Resume(const StreamId& stream) = 0;
+
+  // Whether every payload Poll returns is followed by at least kRecordPadding (decode.h) readable
+  // bytes, as in the line sources' read blocks: the decoder then parses it where it lies instead
+  // of copying it into its own padded buffer first.
+  virtual bool PayloadsPadded() const { return false; }
 };
 
 }  // namespace plimsoll::stream
