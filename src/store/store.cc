@@ -527,12 +527,18 @@ Result<int64_t> Store::Impl::Resolve(std::string_view name, std::string_view wha
   // A hint remembers the key and the interned name it resolved to: one comparison instead of a
   // hash and a walk through the map (the lookups were a fifth of the writer's time at 100k series).
   if (hint < hinted_.size() && hinted_[hint].Names(name)) return hinted_[hint].key;
+  if (name.empty()) {
+    // An unnamed entry: its hint must have been named in a committed transaction (records.h).
+    if (hint < hinted_.size() && hinted_[hint].name != nullptr) return hinted_[hint].key;
+    return Status::InvalidArgument(std::string(what) + " for an unnamed series with hint " + std::to_string(hint) +
+                                   ": no earlier commit of this store named that hint");
+  }
   auto it = series_ids_.find(name);
   if (it == series_ids_.end()) {
     return Status::InvalidArgument(std::string(what) + " for series '" + std::string(name) +
                                    "': the series is neither stored nor listed in the batch's series");
   }
-  if (hint != kNoHint && hint < (uint32_t{1} << 26)) {  // a hint is a dense index, not any number
+  if (hint < kMaxHint) {  // a hint is a dense index, not any number
     if (hint >= hinted_.size()) hinted_.resize(std::max<size_t>(hint + 1, hinted_.size() * 5 / 4));
     hinted_[hint] = Hinted(&it->first, it->second);
   }
@@ -740,8 +746,18 @@ Status Store::Impl::Commit(const CommitBatch& batch) {
   Status status = RunTransaction(
       "commit", [&] { return WriteBatch(batch, tally); },
       [&] {
-        for (const std::string& name : added_names_) series_ids_.erase(name);
-        if (!added_names_.empty()) hinted_.clear();  // hints may point at the names just erased
+        // Series the transaction created are gone, and so are the hints that resolved to them;
+        // hints of committed series stay (a caller may already leave those unnamed).
+        int64_t first_added_key = INT64_MAX;
+        for (const std::string& name : added_names_) {
+          auto it = series_ids_.find(name);
+          if (it == series_ids_.end()) continue;
+          first_added_key = std::min(first_added_key, it->second);  // new keys exceed every older one
+          series_ids_.erase(it);
+        }
+        if (first_added_key != INT64_MAX)
+          for (Hinted& h : hinted_)
+            if (h.name != nullptr && h.key >= first_added_key) h = Hinted();
         added_names_.clear();
       });
   if (!status.ok()) {

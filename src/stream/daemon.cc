@@ -56,6 +56,19 @@ struct Pending {
   // install is not re-derived from the input, so a restart must not start before it).
   bool installed_since_checkpoint = false;
   std::vector<uint32_t> history_slot;  // ToStoreBatch scratch by SeriesId, kNoSlot between calls
+  // By SeriesId: a durable commit named the series with its id as hint, so later history entries
+  // go unnamed (store::kMaxHint): the owner copied a name per series per commit, and the writer
+  // compared it.
+  std::vector<uint8_t> store_knows;
+
+  void LearnNamed(const store::HistoryBatch& durable) {
+    for (size_t k = 0; k < durable.hints.size(); ++k) {
+      const uint32_t hint = durable.hints[k];
+      if (hint >= store::kMaxHint || durable.series[k].empty()) continue;
+      if (hint >= store_knows.size()) store_knows.resize(std::max<size_t>(hint + 1, store_knows.size() * 9 / 8), 0);
+      store_knows[hint] = 1;
+    }
+  }
   // Batches done with, kept for their buffers: the next TakeBatch and ToStoreBatch reuse them
   // instead of mapping megabytes afresh at every commit.
   EngineBatch spare_engine_batch;
@@ -210,24 +223,29 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_
                                             m.choice.loglik, m.choice.aicc, now_ms, m.reason, m.step,
                                             m.previous ? m.previous->Notation() : std::string()});
   }
-  // Each series named once per commit; points refer to it by index.
+  // Each series once per commit (named until the store knows its id); points refer to it by index.
   std::vector<uint32_t>& history_slot = pending.history_slot;
   if (history_slot.size() < engine.series_count()) history_slot.resize(engine.series_count(), kNoSlot);
+  const std::vector<uint8_t>& known = pending.store_knows;
   out.history.points.reserve(batch.history.size());
-  // Names and slots are read at random over megabytes at 100k series: fetch a later point's while
-  // this one is copied (the name loads were 70% of this function's time).
+  // Slots are read at random over megabytes at 100k series: fetch a later point's while this one
+  // is copied.
   constexpr size_t kAhead = 8;
   for (size_t k = 0; k < batch.history.size(); ++k) {
     if (k + kAhead < batch.history.size()) {
       const SeriesId later = batch.history[k + kAhead].series;
-      __builtin_prefetch(&name(later));
       __builtin_prefetch(&history_slot[later]);
+      if (later < known.size()) __builtin_prefetch(&known[later]);
     }
     const HistoryPoint& h = batch.history[k];
     uint32_t& slot = history_slot[h.series];
     if (slot == kNoSlot) {
       slot = static_cast<uint32_t>(out.history.series.size());
-      out.history.series.push_back(name(h.series));
+      if (h.series < known.size() && known[h.series] != 0) {
+        out.history.series.emplace_back();
+      } else {
+        out.history.series.push_back(name(h.series));
+      }
       out.history.hints.push_back(h.series);  // SeriesIds are dense: the store's name-lookup hint
     }
     out.history.points.push_back({slot, h.step, h.value});
@@ -340,6 +358,7 @@ Status Daemon::Run(RecordSource& source, RecordDecoder& decoder, const std::atom
       Status published = sink->Publish(durable);
       if (!published.ok()) counters_.sink_errors.fetch_add(1, std::memory_order_relaxed);
     }
+    im.pending.LearnNamed(durable.history);
     im.pending.spare_commit_batch = std::move(durable);  // its buffers serve the next commit
   };
   const auto take_durable = [&] {

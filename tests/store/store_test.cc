@@ -717,7 +717,7 @@ TEST_CASE("name hints speed lookups up and never misplace a record, even when wr
   CHECK(store->GetSeries("b")->state->encoded == "b3");
   CHECK(store->HistoryTail("a", 1)->values == std::vector<double>{20.0});
   CHECK(store->HistoryTail("b", 1)->values == std::vector<double>{-20.0});
-  // A rolled-back commit that added a series forgets every hint; the next commits still resolve.
+  // A rolled-back commit that added a series forgets that series' hint; the next commits still resolve.
   CommitBatch failing;
   failing.series = {{"c", "p", 0}};
   failing.states = {{"c", 1, 0, "c1", 2}};
@@ -728,6 +728,42 @@ TEST_CASE("name hints speed lookups up and never misplace a record, even when wr
   REQUIRE(store->Commit(after).ok());
   CHECK(store->GetSeries("a")->state->encoded == "a4");
   CHECK(store->GetSeries("b")->state->encoded == "b4");
+  CHECK(store->GetSeries("c").status().code() == StatusCode::kNotFound);
+}
+
+TEST_CASE("history entries go unnamed once a commit named their hint, and only then", "[store]") {
+  TempDir dir;
+  auto store = OpenOrDie(TestOptions(dir));
+  const auto history = [](std::vector<std::string> names, std::vector<uint32_t> hints, int64_t step) {
+    CommitBatch b;
+    for (uint32_t k = 0; k < names.size(); ++k) b.history.points.push_back({k, step, 10.0 * (k + 1) + step});
+    b.history.series = std::move(names);
+    b.history.hints = std::move(hints);
+    return b;
+  };
+  CommitBatch create = history({"a", "b"}, {5, 6}, 1);
+  create.series = {{"a", "p", 0}, {"b", "p", 0}};
+  REQUIRE(store->Commit(create).ok());
+  REQUIRE(store->Commit(history({"", ""}, {5, 6}, 2)).ok());  // named by the first commit
+  CHECK(store->HistoryTail("a", 5)->values == std::vector<double>{11.0, 12.0});
+  CHECK(store->HistoryTail("b", 5)->values == std::vector<double>{21.0, 22.0});
+
+  // A hint no commit named: refused whole, naming the hint; nothing of the batch is written.
+  Status unknown = store->Commit(history({"", ""}, {5, 9}, 3));
+  CHECK(unknown.code() == StatusCode::kInvalidArgument);
+  CHECK(unknown.message().find("hint 9") != std::string::npos);
+  CHECK(store->HistoryTail("a", 5)->values == std::vector<double>{11.0, 12.0});
+
+  // A commit that named a new series with a hint, then rolled back: that hint is forgotten, the
+  // committed ones are not.
+  CommitBatch failing = history({"c", ""}, {7, 5}, 3);
+  failing.series = {{"c", "p", 0}};
+  store->TEST_FailNextCommitAfterRows(2, Status::IoError("injected"));  // the series and the log row
+  REQUIRE_FALSE(store->Commit(failing).ok());
+  CHECK(store->Commit(history({""}, {7}, 3)).code() == StatusCode::kInvalidArgument);
+  REQUIRE(store->Commit(history({"", ""}, {5, 6}, 3)).ok());
+  CHECK(store->HistoryTail("a", 5)->values == std::vector<double>{11.0, 12.0, 13.0});
+  CHECK(store->HistoryTail("b", 5)->values == std::vector<double>{21.0, 22.0, 23.0});
   CHECK(store->GetSeries("c").status().code() == StatusCode::kNotFound);
 }
 

@@ -21,8 +21,12 @@ inline constexpr double kNoValue = std::numeric_limits<double>::quiet_NaN();  //
 // A caller's dense number for a series name (the engine's series index), carried next to the
 // name in the hottest records so the store can skip the name lookup. Optional: a hint the store
 // has not seen, or one that now names another series, only costs the lookup (the store compares
-// the names). kNoHint: none.
+// the names). kNoHint: none. Hints from kMaxHint up are not remembered (they only cost the lookup).
 inline constexpr uint32_t kNoHint = UINT32_MAX;
+inline constexpr uint32_t kMaxHint = uint32_t{1} << 26;
+// A history entry may go unnamed (an empty name) when its hint was named in an earlier
+// successful commit of the same Store object: the store then takes the series that commit
+// resolved it to, and the caller copies no name (see HistoryBatch).
 
 // One series' identity. Committed rows may only name series that exist in the store or appear
 // in the same batch's `series` list.
@@ -62,7 +66,9 @@ struct StateRecord {
 
 // The accepted observations of one commit, appended to the series' history (what refits read).
 // Each series is named once and its points refer to it by index, so a commit of N points for
-// K series costs K name lookups in the store, not N.
+// K series costs K name lookups in the store, not N. With hints, an entry's name may be empty
+// once a successful commit of this Store named its hint (kMaxHint): a commit naming an
+// unknown hint that way fails with InvalidArgument and writes nothing.
 struct HistoryBatch {
   struct Point {
     uint32_t series = 0;  // index into `series`
