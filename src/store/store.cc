@@ -147,6 +147,7 @@ struct KeyedRow {
   int64_t key, step;
   size_t index;  // into the batch's list
   static bool ByKey(const KeyedRow& a, const KeyedRow& b) { return a.key != b.key ? a.key < b.key : a.step < b.step; }
+  static bool ByStep(const KeyedRow& a, const KeyedRow& b) { return a.step != b.step ? a.step < b.step : a.key < b.key; }
 };
 
 // One run of a history log row during compaction, grouped by series (its place in the grouped
@@ -456,7 +457,7 @@ class Store::Impl {
   std::unique_ptr<char[]> pack_buffer_;  // WriteBatch: the history log row being built
   size_t pack_capacity_ = 0;
   std::vector<int64_t> history_keys_;  // WriteBatch: the series key of each batch.history.series entry
-  std::vector<KeyedRow> keyed_;        // WriteBatch: states / flags in key order
+  std::vector<KeyedRow> keyed_;        // WriteBatch: states / flags in primary-key order
   // ReadAndRegroupLog's scratch, kept between compactions: its buffers are tens of megabytes.
   std::vector<char, HugePageAllocator<char>> log_copy_;                // the log rows' blobs back to back
   std::vector<SortedRun, HugePageAllocator<SortedRun>> sorted_runs_;  // their runs grouped by series
@@ -667,7 +668,7 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
       if (!id.ok()) return id.status();
       keyed_.push_back({*id, batch.flags[i].step, i});
     }
-    std::stable_sort(keyed_.begin(), keyed_.end(), KeyedRow::ByKey);  // primary-key order, as for states
+    std::stable_sort(keyed_.begin(), keyed_.end(), KeyedRow::ByStep);  // primary-key order (schema 9)
     for (const KeyedRow& row : keyed_) {
       const FlagRecord& f = batch.flags[row.index];
       stmt->Bind(1, row.key).Bind(2, f.step).Bind(3, f.time_ms).Bind(4, f.value).Bind(5, f.expected);

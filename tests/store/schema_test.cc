@@ -77,7 +77,7 @@ TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store
   REQUIRE(tail.ok());
   CHECK(tail->first_step == 43);
   CHECK(tail->values == std::vector<double>{1.5});
-  // The flag kept its fields through version 8's table, which still ignores a repeat of it.
+  // The flag kept its fields through versions 8 and 9, whose tables still ignore a repeat of it.
   CommitBatch again;
   again.flags.push_back({"queue-a", 40, 4000, 1, 2, 3, 4, 0.9, 1, "ETS(A,N,N)"});
   again.flags.push_back({"queue-a", 41, 4100, 10, 5, 4, 6, 0.99, 4.0, "ETS(A,N,N)"});
@@ -91,6 +91,44 @@ TEST_CASE("a version 1 store migrates to the latest and keeps its rows", "[store
   store.reset();
   auto db = RawOpen(dir.File("store.db"));
   CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
+}
+
+TEST_CASE("a version 8 store's flags move to the (step, series) key and stay unique", "[store]") {
+  TempDir dir;
+  {
+    auto db = RawOpen(dir.File("store.db"));
+    REQUIRE(MigrateSchema(*db, 8).ok());
+    REQUIRE(db->Exec("INSERT INTO series(id, name, profile, created_ms) VALUES (1, 'a', 'p', 0), (2, 'b', 'p', 0);"
+                     "INSERT INTO flags(series, step, time_ms, value, expected, lower, upper, level, score, form) "
+                     "VALUES (2, 11, 1100, 1, 2, 3, 4, 0.99, 5, 'ETS(A,N,N)'), (1, 12, 1200, 6, 2, 3, 4, 0.99, 7, "
+                     "'ETS(A,N,A)'), (1, 10, 1000, 8, 2, 3, 4, 0.99, 9, 'ETS(A,N,A)');")
+                .ok());
+  }
+  auto store = testing::OpenOrDie(testing::TestOptions(dir));
+  CommitBatch repeat;  // one flag already stored, one new
+  repeat.flags.push_back({"a", 10, 1000, 100, 2, 3, 4, 0.99, 9, "ETS(A,N,A)"});
+  repeat.flags.push_back({"b", 13, 1300, 10, 2, 3, 4, 0.99, 11, "ETS(A,N,N)"});
+  REQUIRE(store->Commit(repeat).ok());
+  CHECK(store->counters().flags_duplicate == 1);
+  Result<std::vector<FlagRecord>> a = store->RecentFlags("a", 10);
+  REQUIRE(a.ok());
+  REQUIRE(a->size() == 2);
+  CHECK((*a)[0] == FlagRecord{"a", 12, 1200, 6, 2, 3, 4, 0.99, 7, "ETS(A,N,A)"});
+  CHECK((*a)[1] == FlagRecord{"a", 10, 1000, 8, 2, 3, 4, 0.99, 9, "ETS(A,N,A)"});  // the stored one kept
+  Result<std::vector<FlagRecord>> b = store->RecentFlags("b", 1);
+  REQUIRE(b.ok());
+  REQUIRE(b->size() == 1);
+  CHECK((*b)[0].step == 13);
+  Result<std::vector<FlagRecord>> all = store->RecentFlags("", 10);
+  REQUIRE(all.ok());
+  REQUIRE(all->size() == 4);
+  CHECK((*all)[0].time_ms == 1300);
+  CHECK((*all)[3].time_ms == 1000);
+  store.reset();
+  auto db = RawOpen(dir.File("store.db"));
+  CHECK(Query(*db, "PRAGMA user_version") == LatestSchemaVersion());
+  CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'flags' AND sql LIKE '%PRIMARY KEY (step, series)%'") == 1);
+  CHECK(Query(*db, "SELECT count(*) FROM sqlite_schema WHERE name = 'flags_by_series'") == 0);
 }
 
 TEST_CASE("a version 2 store migrates to version 3 and keeps refit requests until taken", "[store]") {
