@@ -286,4 +286,44 @@ TEST_CASE("records decoded in place from a padded source end as copied ones, bad
   fs::remove_all(dir);
 }
 
+TEST_CASE("the last commits are made while the writer still retries an earlier one", "[stream][daemon]") {
+  // At the end of input the daemon submits the unread rest, then the checkpoint: two batches in a
+  // row while the writer may still be retrying an earlier one. Each must wait for the slot while
+  // taking what became durable (a version that did not waited forever here).
+  const fs::path dir = fs::temp_directory_path() / ("plimsoll-drain-test-" + std::to_string(::getpid()));
+  fs::remove_all(dir);
+  fs::create_directories(dir);
+  Feed feed;
+  for (int k = 0; k < 20; ++k)
+    for (int i = 0; i < 5; ++i) {
+      const std::string text = "s-00" + std::to_string(i) + "," + std::to_string(kT0 + 60LL * k) + "," +
+                               std::to_string(100 + i + k % 3);
+      feed.lines.emplace_back(static_cast<int64_t>(feed.text.size()), static_cast<int64_t>(text.size()));
+      feed.text += text + "\n";
+    }
+  store::StoreOptions store_options;
+  store_options.path = (dir / "store.db").string();
+  Result<std::unique_ptr<store::Store>> opened = store::Store::Open(store_options);
+  REQUIRE(opened.ok());
+  // The first commit (the first poll's 64 records) fails once: the writer retries it after a
+  // back-off, during which the rest of the input is read and the end reached.
+  (*opened)->TEST_FailNextCommitAfterRows(1, Status::IoError("injected"));
+  DaemonOptions options = Options();
+  options.commit_records = 10;
+  options.max_uncommitted_records = 1000;
+  ManualClock clock(1'767'225'600'000, 1'000'000'000);
+  Result<std::unique_ptr<Daemon>> daemon = Daemon::Open(options, Profiles(), Choose, std::move(opened).value(), &clock);
+  REQUIRE(daemon.ok());
+  FeedSource source(feed, 0);
+  RecordDecoder decoder;
+  std::atomic<bool> stop{false};
+  REQUIRE((*daemon)->Run(source, decoder, stop).ok());
+  CHECK((*daemon)->StoreCounters().commit_failures == 1);
+  daemon->reset();
+  const Outcome stored = Read((dir / "store.db").string());
+  REQUIRE(stored.states.size() == 5);
+  for (const auto& [name, state] : stored.states) CHECK(state.first == kT0 / 60 + 19);  // the last step's state
+  fs::remove_all(dir);
+}
+
 }  // namespace plimsoll::stream
