@@ -422,7 +422,9 @@ class Store::Impl {
   Status RunTransaction(std::string_view what, Body body, Undo undo);
   Status WriteBatch(const CommitBatch& batch, Tally& tally);
   Status CountRow(Tally& tally);
-  Result<int64_t> Resolve(std::string_view name, std::string_view what, uint32_t hint = kNoHint);
+  // `unnamed_ok`: an empty name takes its hint's committed series (history entries only, records.h).
+  Result<int64_t> Resolve(std::string_view name, std::string_view what, uint32_t hint = kNoHint,
+                          bool unnamed_ok = false);
   Result<int64_t> LookupSeries(std::string_view name);
   Result<PreparedCompaction> ReadAndRegroupLog(int64_t max_log_rows, PreparedCompaction out);
 
@@ -524,11 +526,11 @@ Status Store::Impl::CountRow(Tally& tally) {
   return Status::Ok();
 }
 
-Result<int64_t> Store::Impl::Resolve(std::string_view name, std::string_view what, uint32_t hint) {
+Result<int64_t> Store::Impl::Resolve(std::string_view name, std::string_view what, uint32_t hint, bool unnamed_ok) {
   // A hint remembers the key and the interned name it resolved to: one comparison instead of a
   // hash and a walk through the map (the lookups were a fifth of the writer's time at 100k series).
   if (hint < hinted_.size() && hinted_[hint].Names(name)) return hinted_[hint].key;
-  if (name.empty()) {
+  if (name.empty() && unnamed_ok) {
     // An unnamed entry: its hint must have been named in a committed transaction (records.h).
     if (hint < hinted_.size() && hinted_[hint].name != nullptr) return hinted_[hint].key;
     return Status::InvalidArgument(std::string(what) + " for an unnamed series with hint " + std::to_string(hint) +
@@ -619,7 +621,7 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
       // The hint table is megabytes at 100k series: fetch a later entry while this one resolves.
       if (hinted && k + 8 < names.size() && batch.history.hints[k + 8] < hinted_.size())
         __builtin_prefetch(&hinted_[batch.history.hints[k + 8]]);
-      Result<int64_t> id = Resolve(names[k], "history point", hinted ? batch.history.hints[k] : kNoHint);
+      Result<int64_t> id = Resolve(names[k], "history point", hinted ? batch.history.hints[k] : kNoHint, true);
       if (!id.ok()) return id.status();
       history_keys_[k] = *id;
     }
@@ -663,8 +665,9 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
         "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)");
     if (!stmt.ok()) return stmt.status();
     keyed_.clear();
+    const bool hinted = batch.flag_hints.size() == batch.flags.size();
     for (size_t i = 0; i < batch.flags.size(); ++i) {
-      Result<int64_t> id = Resolve(batch.flags[i].series, "flag");
+      Result<int64_t> id = Resolve(batch.flags[i].series, "flag", hinted ? batch.flag_hints[i] : kNoHint);
       if (!id.ok()) return id.status();
       keyed_.push_back({*id, batch.flags[i].step, i});
     }

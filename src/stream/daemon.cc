@@ -251,9 +251,11 @@ store::CommitBatch ToStoreBatch(const Engine& engine, EngineBatch& batch, int64_
     out.history.points.push_back({slot, h.step, h.value});
   }
   for (const HistoryPoint& h : batch.history) history_slot[h.series] = kNoSlot;
-  for (const FlagRecord& f : batch.flags)
+  for (const FlagRecord& f : batch.flags) {
     out.flags.push_back(store::FlagRecord{name(f.series), f.step, f.time_ms, f.value, f.expected, f.lower, f.upper,
                                           f.level, f.score, f.form.Notation()});
+    out.flag_hints.push_back(f.series);
+  }
   for (const AlertRecord& a : batch.alerts)
     out.alerts.push_back(store::AlertRecord{
         name(a.series), a.step, a.time_ms,

@@ -709,7 +709,11 @@ TEST_CASE("name hints speed lookups up and never misplace a record, even when wr
   swapped.history.series = {"a", "b"};
   swapped.history.hints = {1, 0};
   swapped.history.points = {{0, 2, 20.0}, {1, 2, -20.0}};
+  swapped.flags = {{"a", 2, 0, 20.0, 0, -1, 1, 0.99, 20, "ETS(A,N,N)"}, {"b", 2, 0, -20.0, 0, -1, 1, 0.99, -20, "ETS(A,N,N)"}};
+  swapped.flag_hints = {1, 0};
   REQUIRE(store->Commit(swapped).ok());
+  CHECK(store->RecentFlags("a", 5)->at(0).value == 20.0);
+  CHECK(store->RecentFlags("b", 5)->at(0).value == -20.0);
   CommitBatch unknown;  // a hint never seen, and one beyond any dense index
   unknown.states = {{"a", 3, 0, "a3", 7}, {"b", 3, 0, "b3", kNoHint - 1}};
   REQUIRE(store->Commit(unknown).ok());
@@ -747,6 +751,14 @@ TEST_CASE("history entries go unnamed once a commit named their hint, and only t
   REQUIRE(store->Commit(history({"", ""}, {5, 6}, 2)).ok());  // named by the first commit
   CHECK(store->HistoryTail("a", 5)->values == std::vector<double>{11.0, 12.0});
   CHECK(store->HistoryTail("b", 5)->values == std::vector<double>{21.0, 22.0});
+  // Only history entries may go unnamed: a state or flag must name its series.
+  CommitBatch unnamed_state;
+  unnamed_state.states = {{"", 2, 0, "x", 5}};
+  CHECK(store->Commit(unnamed_state).code() == StatusCode::kInvalidArgument);
+  CommitBatch unnamed_flag;
+  unnamed_flag.flags = {{"", 2, 0, 1, 0, -1, 1, 0.99, 1, "ETS(A,N,N)"}};
+  unnamed_flag.flag_hints = {5};
+  CHECK(store->Commit(unnamed_flag).code() == StatusCode::kInvalidArgument);
 
   // A hint no commit named: refused whole, naming the hint; nothing of the batch is written.
   Status unknown = store->Commit(history({"", ""}, {5, 9}, 3));

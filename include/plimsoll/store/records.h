@@ -159,6 +159,7 @@ struct CommitBatch {
   std::vector<StateRecord> states;   // upserted per series
   HistoryBatch history;
   std::vector<FlagRecord> flags;     // duplicates of (series, step) ignored
+  std::vector<uint32_t> flag_hints;  // empty, or one per flag (see kNoHint); names stay required
   std::vector<AlertRecord> alerts;   // duplicates of (series, step, kind) ignored
   std::vector<DeadLetterRecord> dead_letters;
   std::vector<EventRecord> events;
@@ -172,7 +173,8 @@ struct CommitBatch {
   bool empty() const { return size() == 0; }
   // Empties every list, keeping capacity for the next interval.
   void Clear() {
-    series.clear(), models.clear(), states.clear(), history.clear(), flags.clear(), alerts.clear();
+    series.clear(), models.clear(), states.clear(), history.clear(), flags.clear(), flag_hints.clear();
+    alerts.clear();
     dead_letters.clear(), events.clear(), positions.clear();
   }
 };
