@@ -92,6 +92,26 @@ class FeedSource final : public testing::OneStreamSource {
   size_t next_ = 0;
 };
 
+// A fresh directory under the system's temp dir, removed with its contents at scope end.
+class ScratchDir {
+ public:
+  explicit ScratchDir(const std::string& tag)
+      : path_(fs::temp_directory_path() / ("plimsoll-" + tag + "-test-" + std::to_string(::getpid()))) {
+    fs::remove_all(path_);
+    fs::create_directories(path_);
+  }
+  ~ScratchDir() {
+    std::error_code ignored;
+    fs::remove_all(path_, ignored);
+  }
+  ScratchDir(const ScratchDir&) = delete;
+  ScratchDir& operator=(const ScratchDir&) = delete;
+  const fs::path& path() const { return path_; }
+
+ private:
+  fs::path path_;
+};
+
 Result<ModelChoice> Choose(std::span<const double> history, const SeriesRules&, bool) {
   return testing::LevelChoice(history, 0.3, 16.0);
 }
@@ -214,9 +234,8 @@ void RunToEnd(const std::string& db, const Feed& feed, OutputSink* sink, bool pa
 
 TEST_CASE("a restart from any committed transaction between checkpoints ends as an uninterrupted run",
           "[stream][daemon]") {
-  const fs::path dir = fs::temp_directory_path() / ("plimsoll-checkpoint-test-" + std::to_string(::getpid()));
-  fs::remove_all(dir);
-  fs::create_directories(dir);
+  const ScratchDir scratch("checkpoint");
+  const fs::path& dir = scratch.path();
   const Feed feed = MakeFeed();
 
   const std::string reference_db = (dir / "reference.db").string();
@@ -261,14 +280,12 @@ TEST_CASE("a restart from any committed transaction between checkpoints ends as 
   }
   CHECK(between >= 2);
   CHECK(between_warming >= 1);
-  fs::remove_all(dir);
 }
 
 TEST_CASE("records decoded in place from a padded source end as copied ones, bad records included",
           "[stream][daemon]") {
-  const fs::path dir = fs::temp_directory_path() / ("plimsoll-padded-test-" + std::to_string(::getpid()));
-  fs::remove_all(dir);
-  fs::create_directories(dir);
+  const ScratchDir scratch("padded");
+  const fs::path& dir = scratch.path();
   const Feed feed = MakeFeed();
   const std::string copied_db = (dir / "copied.db").string(), in_place_db = (dir / "in-place.db").string();
   RunToEnd(copied_db, feed, nullptr, /*padded=*/false);
@@ -283,16 +300,14 @@ TEST_CASE("records decoded in place from a padded source end as copied ones, bad
   // reasons (that a reason never depends on the bytes after a record is decode_test's).
   REQUIRE(copied.dead_letters.size() >= 5);
   CHECK(in_place.dead_letters == copied.dead_letters);
-  fs::remove_all(dir);
 }
 
 TEST_CASE("the last commits are made while the writer still retries an earlier one", "[stream][daemon]") {
   // At the end of input the daemon submits the unread rest, then the checkpoint: two batches in a
   // row while the writer may still be retrying an earlier one. Each must wait for the slot while
   // taking what became durable (a version that did not waited forever here).
-  const fs::path dir = fs::temp_directory_path() / ("plimsoll-drain-test-" + std::to_string(::getpid()));
-  fs::remove_all(dir);
-  fs::create_directories(dir);
+  const ScratchDir scratch("drain");
+  const fs::path& dir = scratch.path();
   Feed feed;
   for (int k = 0; k < 20; ++k)
     for (int i = 0; i < 5; ++i) {
@@ -323,7 +338,6 @@ TEST_CASE("the last commits are made while the writer still retries an earlier o
   const Outcome stored = Read((dir / "store.db").string());
   REQUIRE(stored.states.size() == 5);
   for (const auto& [name, state] : stored.states) CHECK(state.first == kT0 / 60 + 19);  // the last step's state
-  fs::remove_all(dir);
 }
 
 }  // namespace plimsoll::stream
