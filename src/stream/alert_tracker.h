@@ -50,11 +50,6 @@ class AlertTracker {
     w.Put(in_band_run_);
     w.Put<uint8_t>(active_ ? 1 : 0);
   }
-  std::string Encode() const {
-    ByteWriter w;
-    EncodeTo(w);
-    return w.Take();
-  }
   // Returns false (tracker unchanged) for malformed bytes.
   [[nodiscard]] bool Decode(std::string_view bytes) {
     ByteReader r(bytes);

@@ -624,8 +624,11 @@ Status Engine::Refit(SeriesId id, std::span<const double> history, std::string_v
 std::string Engine::EncodeCheckpoint(SeriesId id) const {
   const SeriesRuntime& s = impl_->series[id];
   const size_t state_bytes = s.warming_up ? 0 : model::EncodedStateBytes(s.state);
+  // Six flag bytes, the period, four parameters, two times, the warm-up count, three length
+  // prefixes, then the three parts: reserved at once.
+  constexpr size_t kFixedBytes = 6 + 4 + 4 * 8 + 2 * 8 + 4 + 3 * 4;
   ByteWriter w;
-  w.Reserve(6 + 4 + 4 * 8 + 2 * 8 + 4 + 3 * 4 + StepAligner::kEncodedBytes + AlertTracker::kEncodedBytes + state_bytes);
+  w.Reserve(kFixedBytes + StepAligner::kEncodedBytes + AlertTracker::kEncodedBytes + state_bytes);
   w.Put<uint8_t>(kCheckpointVersion);
   w.Put<uint8_t>(s.warming_up ? 1 : 0);
   w.Put<uint8_t>(s.additive_only ? 1 : 0);

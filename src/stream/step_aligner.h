@@ -93,11 +93,6 @@ class StepAligner {
     for (int64_t v : {last_step_, open_step_, count_}) w.Put(v);
     for (double v : {sum_, max_, last_}) w.Put(v);
   }
-  std::string Encode() const {
-    ByteWriter w;
-    EncodeTo(w);
-    return w.Take();
-  }
   // Returns false (aligner unchanged) for malformed bytes.
   [[nodiscard]] bool Decode(std::string_view bytes) {
     ByteReader r(bytes);

@@ -16,10 +16,6 @@ static_assert(std::endian::native == std::endian::little, "blobs are little-endi
 
 class ByteWriter {
  public:
-  ByteWriter() = default;
-  // Appends to `out` (its contents and capacity are kept): encoders that know their size reserve
-  // once instead of growing a fresh string field by field.
-  explicit ByteWriter(std::string out) : out_(std::move(out)) {}
   template <typename T>
   void Put(T value) {
     static_assert(std::is_trivially_copyable_v<T>);
@@ -33,6 +29,7 @@ class ByteWriter {
   }
   // The length prefix PutBytes writes, for a field whose `size` bytes follow through Put calls.
   void PutLength(size_t size) { Put<uint32_t>(static_cast<uint32_t>(size)); }
+  // Encoders that know their size reserve once instead of growing the string field by field.
   void Reserve(size_t bytes) { out_.reserve(out_.size() + bytes); }
   std::string& str() { return out_; }
   std::string Take() { return std::move(out_); }
