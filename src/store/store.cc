@@ -74,11 +74,14 @@ bool GetVarint(std::string_view blob, size_t& at, uint64_t& v) {
 uint64_t ZigZag(int64_t v) { return (static_cast<uint64_t>(v) << 1) ^ static_cast<uint64_t>(v >> 63); }
 int64_t UnZigZag(uint64_t v) { return static_cast<int64_t>(v >> 1) ^ -static_cast<int64_t>(v & 1); }
 
-// Appends one run: [varint series key, when keyed] zigzag varint first step, varint count, values.
-void PutRunHeader(std::string& out, std::optional<int64_t> series, int64_t first_step, size_t count) {
-  if (series) PutVarint(out, static_cast<uint64_t>(*series));
-  PutVarint(out, ZigZag(first_step));
-  PutVarint(out, count);
+// A run is [varint series key, when keyed (log rows)] zigzag varint first step, varint count,
+// then `count` float64 values. Writes the header into a buffer with room for kRunHeaderMaxBytes;
+// returns the end of what it wrote.
+constexpr size_t kRunHeaderMaxBytes = 3 * 10;
+char* PutRunHeaderTo(char* out, std::optional<int64_t> series, int64_t first_step, size_t count) {
+  if (series) out = PutVarintTo(out, static_cast<uint64_t>(*series));
+  out = PutVarintTo(out, ZigZag(first_step));
+  return PutVarintTo(out, count);
 }
 
 // Calls run(first_step, values, count) for each run of a `history` row (format 2: runs without
@@ -245,7 +248,6 @@ class PackWriter {
   const int64_t cap_;
   PreparedCompaction::Row row_;     // the row being built: its points so far end out_.bytes
   std::vector<PackEntry> entries_;  // its directory so far
-  std::string header_;
 };
 
 void PackWriter::AddSeries(int64_t series, std::span<const SortedRun> runs, const char* log) {
@@ -270,9 +272,8 @@ void PackWriter::AddSeries(int64_t series, std::span<const SortedRun> runs, cons
       take += n, end_done += n;
       if (end_done == r.count) ++end_piece, end_done = 0;
     }
-    header_.clear();
-    PutRunHeader(header_, std::nullopt, first, take);
-    out_.bytes.insert(out_.bytes.end(), header_.begin(), header_.end());
+    char header[kRunHeaderMaxBytes];
+    out_.bytes.insert(out_.bytes.end(), header, PutRunHeaderTo(header, std::nullopt, first, take));
     while (piece != end_piece || done != end_done) {
       const SortedRun& r = runs[piece];
       const uint64_t stop = piece == end_piece ? end_done : r.count;
@@ -625,8 +626,8 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
       if (!id.ok()) return id.status();
       history_keys_[k] = *id;
     }
-    // At most one run per point: three varints of at most 10 bytes and the value.
-    const size_t most = points.size() * (3 * 10 + sizeof(double));
+    // At most one run per point: a keyed header and the value.
+    const size_t most = points.size() * (kRunHeaderMaxBytes + sizeof(double));
     if (pack_capacity_ < most) {
       // Neither copied nor zeroed (a string's resize did both: a tenth of the writer's time when
       // batches grew), and grown by half again so that growing batches reallocate rarely.
@@ -644,9 +645,7 @@ Status Store::Impl::WriteBatch(const CommitBatch& batch, Tally& tally) {
       while (end < points.size() && points[end].series < names.size() && history_keys_[points[end].series] == key &&
              points[end].step == head.step + static_cast<int64_t>(end - begin))
         ++end;
-      out = PutVarintTo(out, static_cast<uint64_t>(key));
-      out = PutVarintTo(out, ZigZag(head.step));
-      out = PutVarintTo(out, end - begin);
+      out = PutRunHeaderTo(out, key, head.step, end - begin);
       for (size_t i = begin; i < end; ++i, out += sizeof(double)) std::memcpy(out, &points[i].value, sizeof(double));
       begin = end;
     }
