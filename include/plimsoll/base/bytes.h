@@ -23,12 +23,12 @@ class ByteWriter {
     std::memcpy(buf, &value, sizeof(T));
     out_.append(buf, sizeof(T));
   }
+  // The length prefix of a field whose `size` bytes follow (PutBytes, or Put calls).
+  void PutLength(size_t size) { Put<uint32_t>(static_cast<uint32_t>(size)); }
   void PutBytes(std::string_view bytes) {
-    Put<uint32_t>(static_cast<uint32_t>(bytes.size()));
+    PutLength(bytes.size());
     out_.append(bytes);
   }
-  // The length prefix PutBytes writes, for a field whose `size` bytes follow through Put calls.
-  void PutLength(size_t size) { Put<uint32_t>(static_cast<uint32_t>(size)); }
   // Encoders that know their size reserve once instead of growing the string field by field.
   void Reserve(size_t bytes) { out_.reserve(out_.size() + bytes); }
   std::string& str() { return out_; }
